@@ -1,0 +1,208 @@
+"""Settings for Recap Scheduler, read from the environment with safe defaults.
+
+Every setting a deployment may change is read here, once, through the small
+helpers below; nothing else in the project reads ``os.environ``.  With no
+environment at all the app runs on one machine: SQLite under ``var/``, the
+in-process task runner instead of Redis, and e-mail written to ``var/mail/``.
+"""
+
+from pathlib import Path
+import os
+
+import dj_database_url
+from django.core.exceptions import ImproperlyConfigured
+
+BASE_DIR = Path(__file__).resolve().parent.parent
+VAR_DIR = Path(os.environ.get("RECAP_VAR_DIR", BASE_DIR / "var"))
+
+
+def env_str(name, default=""):
+    return os.environ.get(name, default)
+
+
+def env_bool(name, default=False):
+    raw = os.environ.get(name)
+    if raw is None or raw == "":
+        return default
+    value = raw.strip().lower()
+    if value in ("1", "true", "yes", "on"):
+        return True
+    if value in ("0", "false", "no", "off"):
+        return False
+    raise ImproperlyConfigured(f"{name} must be true or false, not {raw!r}")
+
+
+def env_int(name, default):
+    raw = os.environ.get(name)
+    if raw is None or raw == "":
+        return default
+    try:
+        return int(raw)
+    except ValueError:
+        raise ImproperlyConfigured(f"{name} must be a whole number, not {raw!r}") from None
+
+
+def env_list(name, default):
+    raw = os.environ.get(name)
+    if raw is None or raw == "":
+        return list(default)
+    return [item.strip() for item in raw.split(",") if item.strip()]
+
+
+DEBUG = env_bool("DEBUG", False)
+SECRET_KEY = env_str("SECRET_KEY")
+if not SECRET_KEY:
+    if DEBUG or env_bool("RECAP_ALLOW_DEV_KEY", True):
+        # A fixed key is fine for a laptop demo; production sets SECRET_KEY and
+        # RECAP_ALLOW_DEV_KEY=false, and `check --deploy` flags a short key.
+        SECRET_KEY = "dev-only-insecure-key-set-SECRET_KEY-in-production"
+    else:
+        raise ImproperlyConfigured("SECRET_KEY must be set")
+
+ALLOWED_HOSTS = env_list("ALLOWED_HOSTS", ["127.0.0.1", "localhost", "testserver"])
+CSRF_TRUSTED_ORIGINS = env_list("CSRF_TRUSTED_ORIGINS", [])
+
+INSTALLED_APPS = [
+    "django.contrib.admin",
+    "django.contrib.auth",
+    "django.contrib.contenttypes",
+    "django.contrib.sessions",
+    "django.contrib.messages",
+    "django.contrib.staticfiles",
+    "fleet",
+    "scheduling",
+    "reports",
+]
+
+MIDDLEWARE = [
+    "django.middleware.security.SecurityMiddleware",
+    "whitenoise.middleware.WhiteNoiseMiddleware",
+    "django.contrib.sessions.middleware.SessionMiddleware",
+    "django.middleware.common.CommonMiddleware",
+    "django.middleware.csrf.CsrfViewMiddleware",
+    "django.contrib.auth.middleware.AuthenticationMiddleware",
+    "django.contrib.messages.middleware.MessageMiddleware",
+    "django.middleware.clickjacking.XFrameOptionsMiddleware",
+]
+
+ROOT_URLCONF = "config.urls"
+
+TEMPLATES = [
+    {
+        "BACKEND": "django.template.backends.django.DjangoTemplates",
+        "DIRS": [BASE_DIR / "templates"],
+        "APP_DIRS": True,
+        "OPTIONS": {
+            "context_processors": [
+                "django.template.context_processors.request",
+                "django.contrib.auth.context_processors.auth",
+                "django.contrib.messages.context_processors.messages",
+            ],
+        },
+    },
+]
+
+WSGI_APPLICATION = "config.wsgi.application"
+
+_default_db = f"sqlite:///{VAR_DIR / 'recap.sqlite3'}"
+try:
+    DATABASES = {
+        "default": dj_database_url.parse(
+            env_str("DATABASE_URL", _default_db), conn_max_age=env_int("DB_CONN_MAX_AGE", 0)
+        )
+    }
+except ValueError as exc:
+    raise ImproperlyConfigured(f"DATABASE_URL is not a database address: {exc}") from None
+if DATABASES["default"]["ENGINE"] == "django.db.backends.sqlite3":
+    DATABASES["default"].setdefault("OPTIONS", {})
+    # WAL lets the web process read while a background job writes.
+    DATABASES["default"]["OPTIONS"].setdefault(
+        "init_command", "PRAGMA journal_mode=WAL; PRAGMA synchronous=NORMAL;"
+    )
+    DATABASES["default"]["OPTIONS"].setdefault("timeout", 20)
+
+DEFAULT_AUTO_FIELD = "django.db.models.BigAutoField"
+
+AUTH_PASSWORD_VALIDATORS = [
+    {"NAME": "django.contrib.auth.password_validation.UserAttributeSimilarityValidator"},
+    {"NAME": "django.contrib.auth.password_validation.MinimumLengthValidator"},
+    {"NAME": "django.contrib.auth.password_validation.CommonPasswordValidator"},
+    {"NAME": "django.contrib.auth.password_validation.NumericPasswordValidator"},
+]
+
+LANGUAGE_CODE = "en-gb"
+TIME_ZONE = env_str("TIME_ZONE", "Europe/London")
+USE_I18N = True
+USE_TZ = True
+
+STATIC_URL = "static/"
+STATIC_ROOT = VAR_DIR / "static"
+STORAGES = {
+    "default": {"BACKEND": "django.core.files.storage.FileSystemStorage"},
+    "staticfiles": {
+        "BACKEND": (
+            "whitenoise.storage.CompressedManifestStaticFilesStorage"
+            if not DEBUG and env_bool("RECAP_MANIFEST_STATIC", False)
+            else "django.contrib.staticfiles.storage.StaticFilesStorage"
+        )
+    },
+}
+WHITENOISE_USE_FINDERS = True
+
+LOGIN_URL = "login"
+LOGIN_REDIRECT_URL = "home"
+LOGOUT_REDIRECT_URL = "login"
+
+# Largest upload the CSV import page accepts (bytes).  The importer streams the
+# file row by row, so the limit is about disk and patience, not memory.
+FILE_UPLOAD_MAX_MEMORY_SIZE = 2_621_440
+RECAP_UPLOAD_MAX_BYTES = env_int("RECAP_UPLOAD_MAX_BYTES", 50 * 1024 * 1024)
+
+# E-mail: by default messages are written as files under var/mail/ so a user
+# of the demo can read them.  Set EMAIL_HOST to send through SMTP.
+EMAIL_HOST = env_str("EMAIL_HOST")
+if EMAIL_HOST:
+    EMAIL_BACKEND = "django.core.mail.backends.smtp.EmailBackend"
+    EMAIL_PORT = env_int("EMAIL_PORT", 587)
+    EMAIL_HOST_USER = env_str("EMAIL_HOST_USER")
+    EMAIL_HOST_PASSWORD = env_str("EMAIL_HOST_PASSWORD")
+    EMAIL_USE_TLS = env_bool("EMAIL_USE_TLS", True)
+else:
+    EMAIL_BACKEND = "django.core.mail.backends.filebased.EmailBackend"
+    EMAIL_FILE_PATH = VAR_DIR / "mail"
+DEFAULT_FROM_EMAIL = env_str("DEFAULT_FROM_EMAIL", "recap-scheduler@localhost")
+
+# Background jobs.  REDIS_URL unset: tasks run in the web process (no broker,
+# no Redis needed).  REDIS_URL set: Redis is the Celery broker and result store.
+REDIS_URL = env_str("REDIS_URL")
+if REDIS_URL:
+    CELERY_BROKER_URL = REDIS_URL
+    CELERY_RESULT_BACKEND = REDIS_URL
+    CELERY_TASK_ALWAYS_EAGER = False
+else:
+    CELERY_BROKER_URL = "memory://"
+    CELERY_RESULT_BACKEND = None
+    CELERY_TASK_ALWAYS_EAGER = env_bool("CELERY_TASK_ALWAYS_EAGER", True)
+CELERY_TASK_EAGER_PROPAGATES = True
+CELERY_TASK_ACKS_LATE = True
+CELERY_TASK_TIME_LIMIT = env_int("CELERY_TASK_TIME_LIMIT", 900)
+CELERY_TASK_SOFT_TIME_LIMIT = env_int("CELERY_TASK_SOFT_TIME_LIMIT", 840)
+CELERY_WORKER_PREFETCH_MULTIPLIER = 1
+CELERY_TIMEZONE = TIME_ZONE
+
+# Production hardening: on when DEBUG is off, so `check --deploy` passes.
+if not DEBUG:
+    SECURE_SSL_REDIRECT = env_bool("SECURE_SSL_REDIRECT", True)
+    SESSION_COOKIE_SECURE = env_bool("SESSION_COOKIE_SECURE", True)
+    CSRF_COOKIE_SECURE = env_bool("CSRF_COOKIE_SECURE", True)
+    SECURE_HSTS_SECONDS = env_int("SECURE_HSTS_SECONDS", 31536000)
+    SECURE_HSTS_INCLUDE_SUBDOMAINS = env_bool("SECURE_HSTS_INCLUDE_SUBDOMAINS", True)
+    SECURE_HSTS_PRELOAD = env_bool("SECURE_HSTS_PRELOAD", True)
+    SECURE_PROXY_SSL_HEADER = ("HTTP_X_FORWARDED_PROTO", "https")
+
+LOGGING = {
+    "version": 1,
+    "disable_existing_loggers": False,
+    "handlers": {"console": {"class": "logging.StreamHandler"}},
+    "root": {"handlers": ["console"], "level": env_str("LOG_LEVEL", "WARNING")},
+}

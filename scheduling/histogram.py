@@ -1,0 +1,68 @@
+"""Temperature-time histograms: hours spent in each 1 K bin.
+
+Pure numpy, no Django.  A unit keeps two of these (powered and unpowered);
+the damage of a capacitor is then one weighted sum over the bins, so a check-in
+only adds to a few bins and a fleet recompute is array arithmetic.
+
+Bins are centred on whole degrees Celsius from ``BIN_MIN_C`` to ``BIN_MAX_C``;
+hours outside the range are clipped into the end bins (the model's validity
+range is far inside it).  Temperatures are degC, durations hours.
+"""
+
+import numpy as np
+
+BIN_MIN_C = -40
+BIN_MAX_C = 150
+N_BINS = BIN_MAX_C - BIN_MIN_C + 1
+BIN_CENTRES_C = np.arange(BIN_MIN_C, BIN_MAX_C + 1, dtype=np.float64)
+DTYPE = np.dtype("<f8")
+
+
+def empty(shape=()):
+    """A histogram (or a stack of them) with no hours in it."""
+    return np.zeros(tuple(np.atleast_1d(shape)) + (N_BINS,) if shape != () else (N_BINS,), dtype=DTYPE)
+
+
+def bin_index(temp_c):
+    """Index of the 1 K bin holding each temperature [degC]."""
+    temp_c = np.asarray(temp_c, dtype=np.float64)
+    if np.any(~np.isfinite(temp_c)):
+        raise ValueError("temp_c must be finite")
+    return np.clip(np.rint(temp_c).astype(np.int64) - BIN_MIN_C, 0, N_BINS - 1)
+
+
+def add_hours(hist, temp_c, hours):
+    """Add ``hours`` [h] spent at ``temp_c`` [degC] to ``hist`` in place and return it.
+
+    Both arguments broadcast; repeated bins accumulate (``np.add.at``).
+    """
+    hours = np.asarray(hours, dtype=np.float64)
+    if np.any(~np.isfinite(hours)) or np.any(hours < 0):
+        raise ValueError("hours must be finite and not negative")
+    idx, hrs = np.broadcast_arrays(bin_index(temp_c), hours)
+    np.add.at(hist, idx.ravel(), hrs.ravel())
+    return hist
+
+
+def to_bytes(hist):
+    return np.ascontiguousarray(hist, dtype=DTYPE).tobytes()
+
+
+def from_bytes(blob):
+    if blob is None:
+        return empty()
+    arr = np.frombuffer(bytes(blob), dtype=DTYPE)
+    if arr.shape != (N_BINS,):
+        raise ValueError(f"a stored histogram has {arr.size} bins, expected {N_BINS}")
+    return arr.copy()
+
+
+def stack_from_bytes(blobs):
+    """Many stored histograms as one (n, N_BINS) array, without a Python loop per bin."""
+    if not blobs:
+        return np.zeros((0, N_BINS), dtype=DTYPE)
+    joined = b"".join(bytes(b) for b in blobs)
+    arr = np.frombuffer(joined, dtype=DTYPE)
+    if arr.size != len(blobs) * N_BINS:
+        raise ValueError("a stored histogram has the wrong number of bins")
+    return arr.reshape(len(blobs), N_BINS)

@@ -1,0 +1,64 @@
+"""Stored results of the life engine: thermal histories and forecasts.
+
+The per-unit histograms are kept up to date incrementally (check-in adds the
+hire, the nightly job adds storage), so a forecast never re-reads a unit's
+whole rental history.
+"""
+
+from django.db import models
+
+from fleet.models import Unit
+
+
+class ThermalHistory(models.Model):
+    """Hours per 1 K bin a unit has spent powered (bin = air inside the case)
+    and unpowered (bin = room or store air), up to ``accounted_until``."""
+
+    unit = models.OneToOneField(Unit, on_delete=models.CASCADE, related_name="thermal")
+    powered = models.BinaryField(help_text="float64 hours per bin, see scheduling/histogram.py")
+    unpowered = models.BinaryField()
+    accounted_until = models.DateTimeField(help_text="Storage and hires are counted up to this moment.")
+    last_powered_at = models.DateTimeField(null=True, blank=True,
+                                           help_text="End of the last hire with powered hours.")
+    updated_at = models.DateTimeField(auto_now=True)
+
+    def __str__(self):
+        return f"thermal history of {self.unit_id}"
+
+
+class HistogramSnapshot(models.Model):
+    """A unit's histograms at the moment parts were replaced: a new part's
+    damage is counted from here on (current minus snapshot)."""
+
+    unit = models.ForeignKey(Unit, on_delete=models.CASCADE, related_name="snapshots")
+    taken_at = models.DateTimeField()
+    powered = models.BinaryField()
+    unpowered = models.BinaryField()
+
+    class Meta:
+        ordering = ["unit", "taken_at"]
+
+
+class UnitForecast(models.Model):
+    class Status(models.TextChoices):
+        OK = "ok", "OK"
+        WATCH = "watch", "Watch"
+        DUE = "due", "Due"
+        OVERDUE = "overdue", "Overdue"
+
+    unit = models.OneToOneField(Unit, on_delete=models.CASCADE, related_name="forecast")
+    computed_at = models.DateTimeField()
+    status = models.CharField(max_length=8, choices=Status.choices)
+    due_date = models.DateField(null=True, blank=True)
+    risk = models.FloatField(help_text="Probability (0-1) that the unit fails within the horizon.")
+    horizon_days = models.PositiveIntegerField()
+    max_damage_ratio = models.FloatField(help_text="Largest damage / threshold over the positions.")
+    storage_reform = models.BooleanField(default=False)
+    reasons = models.JSONField(default=list)
+    positions = models.BinaryField(help_text="Per-position results, see scheduling/services.py")
+
+    class Meta:
+        indexes = [models.Index(fields=["status", "due_date"])]
+
+    def __str__(self):
+        return f"{self.unit_id}: {self.status} {self.due_date}"
