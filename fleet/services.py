@@ -158,6 +158,11 @@ def rental_check_in(*, unit_id, in_at=None, venue_ambient_c, powered_hours=None,
     unit.status = Unit.Status.HOLD if rental.reported_faults else Unit.Status.AVAILABLE
     unit.save(update_fields=["status", "hour_meter_h"])
     thermal_add_rental(rental=rental, internal_rise_k=unit.gear_model.internal_rise_k)
+    # The desk must know at once whether the unit may go out again.
+    from scheduling.services import forecast_refresh
+
+    if unit.status != Unit.Status.RETIRED:
+        forecast_refresh(unit_ids=[unit.pk], today=timezone.localdate(in_at))
     return rental
 
 

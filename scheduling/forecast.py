@@ -1,0 +1,481 @@
+"""The forecast: damage now, thresholds, risk and due dates for a whole fleet.
+
+Pure numpy over the arrays of :class:`scheduling.loader.FleetArrays` (duck
+typed; no Django import here).  Every physical step calls
+:mod:`scheduling.physics`; this module only gathers, groups and schedules.
+
+Times are in days since 1970-01-01 (float), damage is the Palmgren-Miner sum
+(1 = the end-of-life limits of the endurance test), rates are damage per day.
+
+The model, in order:
+
+1. Damage counted so far, per capacitor: its unit's powered and unpowered
+   temperature-time histograms (minus the snapshot taken when the part went
+   in), through the life law, with the capacitor's ripple rise added to the
+   powered bins.
+2. Use since the last count (the unit is out, or storage not yet counted) is
+   projected at the unit's rate of use, like the future.
+3. Future use: the unit's last twelve months of hires (powered hours, hours
+   out, mean venue ambient); units with less than ``min_history_days`` in the
+   fleet take the mean of their gear model, else a documented default.
+   Storage between hires at the home location's monthly temperatures.  The
+   yearly damage is spread evenly over the year (the seasons are not resolved
+   in the projection; they are in the history).
+4. Threshold D* per capacitor from its role (physics.threshold_*), capped at
+   ``DAMAGE_THRESHOLD_CAP``.
+5. Scatter: damage-to-failure is Weibull with its median at D*; the unit's
+   risk over the horizon is the probability that any position fails within the
+   horizon given that the unit works now.
+6. Due date: the earliest of the date the risk crosses the policy limit, the
+   date any position reaches ``damage_limit * D*``, and the calendar-age limit
+   of original capacitors.  Status: overdue (date passed), due (within the
+   horizon), watch (within ``watch_days``), ok.
+"""
+
+import datetime as dt
+from dataclasses import dataclass
+
+import numpy as np
+
+from . import histogram as H
+from . import parameters as P
+from . import physics
+
+DAYS_PER_YEAR = 365.25
+HOURS_PER_YEAR = 8766.0
+#: Hours in each calendar month of an average year (February 28.25 days).
+MONTH_HOURS = np.array([31, 28.25, 31, 30, 31, 30, 31, 31, 30, 31, 30, 31], dtype=float) * 24.0
+
+#: Largest damage threshold a role may give [-].  Our choice: the drift laws
+#: are calibrated at D = 1 (endurance-test limits); beyond about twice that
+#: the extrapolation is not trusted, and parts that far gone may vent or open.
+DAMAGE_THRESHOLD_CAP = 2.0
+#: Use assumed for a gear model with no unit having twelve months of history:
+#: hire days per year and venue ambient.  Our assumption, not a published value.
+DEFAULT_HIRE_DAYS_PER_YEAR = 60.0
+DEFAULT_HIRE_LENGTH_DAYS = 2.0
+DEFAULT_VENUE_AMBIENT_C = 25.0
+#: Search range of the due-date solver, days from today.
+SEARCH_PAST_DAYS = 3650.0
+SEARCH_FUTURE_DAYS = 36525.0
+DUE_DATE_ITERATIONS = 22
+#: Chunk of capacitors for the Arrhenius histogram path (memory bound).
+CHUNK = 20_000
+
+STATUS_OK, STATUS_WATCH, STATUS_DUE, STATUS_OVERDUE = "ok", "watch", "due", "overdue"
+
+
+@dataclass
+class Policy:
+    risk_limit: float = 0.10
+    horizon_days: float = 90.0
+    damage_limit: float = 1.0
+    calendar_age_years: float = 30.0
+    storage_reform_months: float = 24.0
+    watch_days: float = 180.0
+
+    @classmethod
+    def from_model(cls, policy):
+        return cls(risk_limit=policy.risk_limit, horizon_days=float(policy.horizon_days),
+                   damage_limit=policy.damage_limit, calendar_age_years=policy.calendar_age_years,
+                   storage_reform_months=policy.storage_reform_months, watch_days=float(policy.watch_days))
+
+
+@dataclass
+class EngineOptions:
+    law: str = P.DEFAULT_LAW
+    activation_energy_ev: float = None
+    weibull_shape: float = P.WEIBULL_SHAPE
+    esr_feedback: bool = False
+    min_history_days: float = 180.0
+
+    def __post_init__(self):
+        if self.law not in ("10k", "arrhenius"):
+            raise ValueError(f"law must be '10k' or 'arrhenius', not {self.law!r}")
+        if self.law == "arrhenius" and (self.activation_energy_ev is None or not self.activation_energy_ev > 0):
+            raise ValueError("activation_energy_ev must be above zero for the Arrhenius law")
+        if not self.weibull_shape > 0:
+            raise ValueError("weibull_shape must be above zero")
+
+
+@dataclass
+class FleetForecast:
+    today_day: float
+    # per capacitor
+    damage: np.ndarray
+    esr_ohm: np.ndarray
+    capacitance_f: np.ndarray
+    threshold: np.ndarray
+    rate_per_day: np.ndarray
+    reaches_day: np.ndarray      # NaN: never at the current rate of use
+    # per unit
+    risk: np.ndarray
+    due_day: np.ndarray          # NaN: nothing due within the search range
+    status: list
+    storage_reform: np.ndarray
+    max_damage_ratio: np.ndarray
+    reasons: list
+
+
+def day_to_date(day):
+    return dt.date(1970, 1, 1) + dt.timedelta(days=int(np.floor(day)))
+
+
+def date_to_day(date):
+    return float((date - dt.date(1970, 1, 1)).days)
+
+
+def _inverse_life(fa_rated_life_h, rated_temp_c, temp_c, opts):
+    """1 / life [1/h] at ``temp_c`` under the chosen law."""
+    if opts.law == "10k":
+        return 1.0 / physics.life_hours_10k(fa_rated_life_h, rated_temp_c, temp_c)
+    return 1.0 / physics.life_hours_arrhenius(fa_rated_life_h, rated_temp_c, temp_c, opts.activation_energy_ev)
+
+
+def _histogram_damage(fa, rise_ripple_k, opts):
+    """Damage counted in the histories, per capacitor (step 1)."""
+    base = fa.baseline_index
+    has_base = base >= 0
+    L0, T0 = fa.rated_life_h, fa.rated_temp_c
+    if opts.law == "10k":
+        # Exact factorisation of the 10 K rule: sum_b h_b / L(T_b + r)
+        #   = (sum_b h_b 2**(T_b/10)) * 2**((r - T0)/10) / L0
+        w = 1.0 / physics.life_hours_10k(1.0, 0.0, H.BIN_CENTRES_C)
+        sp_u, su_u = fa.hist_powered @ w, fa.hist_unpowered @ w
+        sp_s = fa.snap_powered @ w if fa.snap_powered.size else np.zeros(0)
+        su_s = fa.snap_unpowered @ w if fa.snap_unpowered.size else np.zeros(0)
+        sp = sp_u[fa.unit_index] - np.where(has_base, sp_s[np.maximum(base, 0)] if sp_s.size else 0.0, 0.0)
+        su = su_u[fa.unit_index] - np.where(has_base, su_s[np.maximum(base, 0)] if su_s.size else 0.0, 0.0)
+        powered = sp / physics.life_hours_10k(L0, T0, rise_ripple_k)
+        unpowered = su / physics.life_hours_10k(L0, T0, 0.0)
+        return np.maximum(powered, 0.0), np.maximum(unpowered, 0.0)
+    powered = np.empty(fa.n_caps)
+    unpowered = np.empty(fa.n_caps)
+    for start in range(0, fa.n_caps, CHUNK):
+        sl = slice(start, start + CHUNK)
+        hp = fa.hist_powered[fa.unit_index[sl]]
+        hu = fa.hist_unpowered[fa.unit_index[sl]]
+        b = base[sl]
+        if fa.snap_powered.size and np.any(b >= 0):
+            hp = hp - np.where((b >= 0)[:, None], fa.snap_powered[np.maximum(b, 0)], 0.0)
+            hu = hu - np.where((b >= 0)[:, None], fa.snap_unpowered[np.maximum(b, 0)], 0.0)
+        hp, hu = np.maximum(hp, 0.0), np.maximum(hu, 0.0)
+        kw = dict(law="arrhenius", activation_energy_ev=opts.activation_energy_ev)
+        powered[sl] = physics.damage_from_histogram(hp, H.BIN_CENTRES_C, L0[sl], T0[sl], rise_ripple_k[sl], **kw)
+        unpowered[sl] = physics.damage_from_histogram(hu, H.BIN_CENTRES_C, L0[sl], T0[sl], 0.0, **kw)
+    return powered, unpowered
+
+
+def _equivalent_temp_c(life_h, L0, T0, opts):
+    """The constant core temperature at which the part's life is ``life_h``:
+    the inverse of the life law (10 K rule or Arrhenius)."""
+    if opts.law == "10k":
+        return T0 - P.TEN_K_RULE_STEP_K * np.log2(life_h / L0)
+    inv_t = 1.0 / (T0 + P.ZERO_CELSIUS_K) + P.BOLTZMANN_EV_PER_K / opts.activation_energy_ev * np.log(life_h / L0)
+    return 1.0 / inv_t - P.ZERO_CELSIUS_K
+
+
+def _with_feedback(fa, powered_damage, powered_hours, ripple_a, opts):
+    """Powered damage with ESR feedback: the same hours at the equivalent
+    constant ambient (the one giving ``powered_damage`` without feedback),
+    integrated with the ripple rise growing as ESR drifts."""
+    out = powered_damage.copy()
+    use = (powered_hours > 0) & (powered_damage > 0) & (ripple_a > 0)
+    if not np.any(use):
+        return out
+    rise0 = physics.ripple_rise_k(ripple_a[use], fa.esr0_ohm[use], fa.diameter_mm[use], fa.length_mm[use])
+    life_eq = powered_hours[use] / powered_damage[use]
+    core_eq = _equivalent_temp_c(life_eq, fa.rated_life_h[use], fa.rated_temp_c[use], opts)
+    out[use] = physics.damage_with_esr_feedback(
+        powered_hours[use], core_eq - rise0, fa.rated_life_h[use], fa.rated_temp_c[use], ripple_a[use],
+        fa.esr0_ohm[use], fa.diameter_mm[use], fa.length_mm[use], law=opts.law,
+        activation_energy_ev=opts.activation_energy_ev,
+    )
+    return out
+
+
+def projected_use(fa):
+    """Per unit: powered hours per year, hours out per year, venue ambient [degC]
+    (step 3); fills units without enough history from their gear model."""
+    p = fa.use_powered_h_per_year.copy()
+    o = fa.use_out_h_per_year.copy()
+    a = fa.use_ambient_c.copy()
+    known = ~np.isnan(p)
+    n_models = fa.model_id.size
+    count = np.bincount(fa.unit_model[known], minlength=n_models).astype(float)
+    mean_p = np.bincount(fa.unit_model[known], weights=p[known], minlength=n_models)
+    mean_o = np.bincount(fa.unit_model[known], weights=o[known], minlength=n_models)
+    has_a = known & ~np.isnan(a)
+    wa = np.bincount(fa.unit_model[has_a], weights=(a * p)[has_a], minlength=n_models)
+    wp = np.bincount(fa.unit_model[has_a], weights=p[has_a], minlength=n_models)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        mean_p = np.where(count > 0, mean_p / np.maximum(count, 1), np.nan)
+        mean_o = np.where(count > 0, mean_o / np.maximum(count, 1), np.nan)
+        mean_a = np.where(wp > 0, wa / np.where(wp > 0, wp, 1), np.nan)
+    default_p = fa.model_hours_per_day * DEFAULT_HIRE_DAYS_PER_YEAR
+    default_o = np.full(n_models, DEFAULT_HIRE_DAYS_PER_YEAR * 24.0)
+    model_p = np.where(np.isnan(mean_p), default_p, mean_p)
+    model_o = np.where(np.isnan(mean_o), default_o, mean_o)
+    model_a = np.where(np.isnan(mean_a), DEFAULT_VENUE_AMBIENT_C, mean_a)
+    p = np.where(known, p, model_p[fa.unit_model])
+    o = np.where(known, o, model_o[fa.unit_model])
+    a = np.where(np.isnan(a), model_a[fa.unit_model], a)
+    o = np.clip(o, p, HOURS_PER_YEAR)
+    return p, o, a
+
+
+def _first_per_unit(unit_index, key, n_units, k=1):
+    """Capacitor row indices of the ``k`` smallest ``key`` per unit (-1 where none)."""
+    order = np.lexsort((key, unit_index))
+    sorted_units = unit_index[order]
+    starts = np.searchsorted(sorted_units, np.arange(n_units), side="left")
+    ends = np.searchsorted(sorted_units, np.arange(n_units), side="right")
+    out = np.full((n_units, k), -1, dtype=np.int64)
+    for j in range(k):
+        pos = starts + j
+        ok = pos < ends
+        out[ok, j] = order[pos[ok]]
+    return out
+
+
+def compute(fa, *, today, policy=None, options=None):
+    """Forecast every unit in ``fa`` as of ``today`` (a date)."""
+    policy = policy or Policy()
+    opts = options or EngineOptions()
+    today_day = date_to_day(today)
+    nu, nc = fa.n_units, fa.n_caps
+    ui = fa.unit_index
+
+    rise_int = fa.model_rise_k[fa.unit_model]                       # K, per unit
+    ripple_a = np.nan_to_num(fa.pos_ripple_a[fa.position_index])    # A, per capacitor
+    rise_ripple = physics.ripple_rise_k(ripple_a, fa.esr0_ohm, fa.diameter_mm, fa.length_mm)
+
+    # 1. damage counted in the histories
+    d_pow, d_unp = _histogram_damage(fa, rise_ripple, opts)
+    if opts.esr_feedback and nc:
+        hours_p = fa.hist_powered.sum(axis=1)[ui]
+        if fa.snap_powered.size:
+            base = fa.baseline_index
+            hours_p = hours_p - np.where(base >= 0, fa.snap_powered.sum(axis=1)[np.maximum(base, 0)], 0.0)
+        d_pow = _with_feedback(fa, d_pow, np.maximum(hours_p, 0.0), ripple_a, opts)
+    d_hist = d_pow + d_unp
+
+    # 3. rate of damage per day at the projected use
+    p_h, o_h, amb_c = projected_use(fa)
+    store_frac = np.maximum(1.0 - o_h / HOURS_PER_YEAR, 0.0)
+    esr_now_for_rate = fa.esr0_ohm
+    if opts.esr_feedback:
+        esr_now_for_rate = physics.esr_at_damage(fa.esr0_ohm, d_hist)
+    rise_now = physics.ripple_rise_k(ripple_a, esr_now_for_rate, fa.diameter_mm, fa.length_mm)
+    L0, T0 = fa.rated_life_h, fa.rated_temp_c
+    per_year = (
+        p_h[ui] * _inverse_life(L0, T0, amb_c[ui] + rise_int[ui] + rise_now, opts)
+        + (o_h - p_h)[ui] * _inverse_life(L0, T0, amb_c[ui], opts)
+    )
+    store_weights = MONTH_HOURS[None, :] * store_frac[:, None]    # (units, 12) hours per year
+    for m in range(12):
+        per_year += store_weights[ui, m] * _inverse_life(L0, T0, fa.monthly_store_c[ui, m], opts)
+    rate = per_year / DAYS_PER_YEAR
+
+    # 2. use since the last count, projected
+    since = np.maximum(today_day - np.maximum(fa.accounted_day[ui], fa.installed_day), 0.0)
+    damage = d_hist + rate * since
+
+    # 4. role thresholds
+    threshold = _thresholds(fa, damage)
+
+    # per-capacitor state and crossing dates
+    esr = physics.esr_at_damage(fa.esr0_ohm, damage)
+    cap = physics.capacitance_at_damage(fa.capacitance_f, damage)
+    limit = policy.damage_limit * threshold
+    with np.errstate(divide="ignore", invalid="ignore"):
+        reaches = today_day + np.where(rate > 0, (limit - damage) / rate, np.where(damage >= limit, 0.0, np.inf))
+    # A part cannot have crossed before it went in (a threshold of 0 means the
+    # requirement fails even for a new part: it crossed on the day it went in).
+    reaches = np.where(np.isfinite(reaches), np.maximum(reaches, fa.installed_day), np.nan)
+
+    # 5. risk over the horizon, now and as a function of time
+    beta = opts.weibull_shape
+
+    def risk_at(t_days):
+        """Unit risk over the horizon starting ``t_days`` (per unit) from today."""
+        t = t_days[ui]
+        d0 = np.maximum(damage + rate * t, 0.0)
+        d1 = np.maximum(damage + rate * (t + policy.horizon_days), 0.0)
+        f = physics.conditional_failure_probability(d0, d1, threshold, beta)
+        log_survive = np.bincount(ui, weights=np.log1p(-np.minimum(f, 1 - 1e-16)), minlength=nu)
+        return -np.expm1(log_survive)
+
+    risk = risk_at(np.zeros(nu)) if nc else np.zeros(nu)
+    risk_day = np.full(nu, np.nan)
+    if nc:
+        lo = np.full(nu, -SEARCH_PAST_DAYS)
+        hi = np.full(nu, SEARCH_FUTURE_DAYS)
+        at_lo = risk_at(lo) >= policy.risk_limit
+        at_hi = risk_at(hi) >= policy.risk_limit
+        for _ in range(DUE_DATE_ITERATIONS):
+            mid = 0.5 * (lo + hi)
+            above = risk_at(mid) >= policy.risk_limit
+            hi = np.where(above, mid, hi)
+            lo = np.where(above, lo, mid)
+        risk_day = np.where(at_lo, today_day - SEARCH_PAST_DAYS, np.where(at_hi, today_day + hi, np.nan))
+
+    # 6. due dates
+    pos_day = np.full(nu, np.nan)
+    if nc:
+        key = np.where(np.isnan(reaches), np.inf, reaches)
+        earliest = np.full(nu, np.inf)
+        np.minimum.at(earliest, ui, key)
+        pos_day = np.where(np.isfinite(earliest), earliest, np.nan)
+    has_original = np.zeros(nu, dtype=bool)
+    if nc:
+        has_original[ui[fa.is_original]] = True
+    age_day = np.where(has_original, fa.manufactured_day + policy.calendar_age_years * DAYS_PER_YEAR, np.nan)
+    due_day = np.fmin(np.fmin(risk_day, pos_day), age_day)
+
+    status = []
+    for d in due_day:
+        if np.isnan(d):
+            status.append(STATUS_OK)
+        elif d < today_day:
+            status.append(STATUS_OVERDUE)
+        elif d <= today_day + policy.horizon_days:
+            status.append(STATUS_DUE)
+        elif d <= today_day + policy.watch_days:
+            status.append(STATUS_WATCH)
+        else:
+            status.append(STATUS_OK)
+
+    last_on = np.where(np.isnan(fa.last_powered_day), fa.joined_day, fa.last_powered_day)
+    unpowered_months = (today_day - last_on) / (DAYS_PER_YEAR / 12)
+    storage_reform = unpowered_months > policy.storage_reform_months
+
+    ratio = np.zeros(nu)
+    if nc:
+        share = np.divide(damage, threshold, out=np.full(nc, 1e6), where=threshold > 0)
+        np.maximum.at(ratio, ui, share)
+
+    reasons = _reasons(fa, policy, today_day, damage, threshold, reaches, risk, risk_day, age_day, has_original,
+                       storage_reform, unpowered_months)
+    return FleetForecast(today_day=today_day, damage=damage, esr_ohm=esr, capacitance_f=cap, threshold=threshold,
+                         rate_per_day=rate, reaches_day=reaches, risk=risk, due_day=due_day, status=status,
+                         storage_reform=storage_reform, max_damage_ratio=ratio, reasons=reasons)
+
+
+def _circuit(fa, name, rows):
+    return fa.pos_circuit[name][fa.position_index[rows]]
+
+
+def _thresholds(fa, damage):
+    """Role-aware damage threshold D* per capacitor (step 4)."""
+    from .loader import ROLE_CODES
+
+    nc = fa.n_caps
+    threshold = np.full(nc, P.GENERAL_DAMAGE_THRESHOLD)
+    role = fa.pos_role[fa.position_index]
+
+    # Signal coupling: the high-pass corner must stay below its limit.
+    rows = np.flatnonzero(role == ROLE_CODES["signal_coupling"])
+    if rows.size:
+        r, fmax = _circuit(fa, "coupling_load_ohm", rows), _circuit(fa, "coupling_max_corner_hz", rows)
+        ok = ~np.isnan(r) & ~np.isnan(fmax)
+        if np.any(ok):
+            threshold[rows[ok]] = physics.threshold_coupling(r[ok], fa.capacitance_f[rows[ok]], fmax[ok])
+
+    # Supply reservoir: ripple must stay below its limit.
+    rows = np.flatnonzero(role == ROLE_CODES["supply_reservoir"])
+    if rows.size:
+        load = _circuit(fa, "reservoir_load_a", rows)
+        f = _circuit(fa, "reservoir_ripple_freq_hz", rows)
+        lim = _circuit(fa, "reservoir_ripple_limit_v", rows)
+        ok = ~np.isnan(load) & ~np.isnan(f) & ~np.isnan(lim)
+        if np.any(ok):
+            k = rows[ok]
+            threshold[k] = physics.threshold_reservoir(load[ok], f[ok], fa.capacitance_f[k], fa.esr0_ohm[k], lim[ok])
+
+    # Charge pump: the negative rail must stay beyond its minimum magnitude.
+    pump = np.flatnonzero((role == ROLE_CODES["pump_flying"]) | (role == ROLE_CODES["pump_reservoir"]))
+    if pump.size:
+        index = {(int(fa.unit_index[i]), int(fa.position_index[i])): i for i in pump}
+        partner_pos = fa.pos_partner[fa.position_index[pump]]
+        partner = np.array([index.get((int(fa.unit_index[i]), int(p)), -1) for i, p in zip(pump, partner_pos)],
+                           dtype=np.int64)
+        names = ("pump_input_v", "pump_load_a", "pump_freq_hz", "pump_switch_ohm", "pump_min_rail_v")
+        vin, load, f, rsw, vmin = (_circuit(fa, n, pump) for n in names)
+        rsw = np.nan_to_num(rsw)
+        ok = (partner >= 0) & ~np.isnan(vin) & ~np.isnan(load) & ~np.isnan(f) & ~np.isnan(vmin)
+        for flying in (True, False):
+            sel = ok & ((role[pump] == ROLE_CODES["pump_flying"]) == flying)
+            if not np.any(sel):
+                continue
+            me, other = pump[sel], partner[sel]
+            fly, res = (me, other) if flying else (other, me)
+            threshold[me] = physics.threshold_pump(
+                vin[sel], load[sel], f[sel], fa.capacitance_f[fly], fa.capacitance_f[res],
+                fa.esr0_ohm[fly], fa.esr0_ohm[res], rsw[sel], vmin[sel],
+                which="flying" if flying else "reservoir", other_damage=damage[other],
+            )
+    return np.clip(threshold, 0.0, DAMAGE_THRESHOLD_CAP)
+
+
+ROLE_WORDS = {
+    "general": "general", "supply_decoupling": "supply decoupling", "timing": "timing",
+    "supply_reservoir": "supply reservoir", "pump_flying": "pump flying", "pump_reservoir": "pump reservoir",
+    "signal_coupling": "signal coupling",
+}
+
+
+def _when(day, today_day):
+    if day < today_day:
+        return f"since about {day_to_date(day):%Y-%m}"
+    return f"by {day_to_date(day):%Y-%m}"
+
+
+def _position_reason(fa, i, reach_day, today_day, threshold_is_zero=False):
+    from .loader import ROLE_NAMES
+
+    pos = fa.position_index[i]
+    des = fa.pos_designator[pos]
+    role = ROLE_NAMES[int(fa.pos_role[pos])]
+    when = _when(reach_day, today_day)
+    c = fa.pos_circuit
+    if threshold_is_zero:
+        return (f"{des} {ROLE_WORDS[role]}: the circuit requirement is not met even by a new part; "
+                "check this position's circuit figures")
+    if role in ("pump_flying", "pump_reservoir") and not np.isnan(c["pump_min_rail_v"][pos]):
+        what = f"negative rail would sag below {c['pump_min_rail_v'][pos]:g} V"
+    elif role == "supply_reservoir" and not np.isnan(c["reservoir_ripple_limit_v"][pos]):
+        what = f"supply ripple would exceed {c['reservoir_ripple_limit_v'][pos]:g} V p-p"
+    elif role == "signal_coupling" and not np.isnan(c["coupling_max_corner_hz"][pos]):
+        what = f"bass roll-off would rise above {c['coupling_max_corner_hz'][pos]:g} Hz"
+    else:
+        what = "reaches end-of-life drift (ESR doubled, capacitance down 20%)"
+    return f"{des} {ROLE_WORDS[role]}: {what} {when}"
+
+
+def _reasons(fa, policy, today_day, damage, threshold, reaches, risk, risk_day, age_day, has_original,
+             storage_reform, unpowered_months):
+    nu = fa.n_units
+    key = np.where(np.isnan(reaches), np.inf, reaches)
+    first = _first_per_unit(fa.unit_index, key, nu, k=2) if fa.n_caps else np.full((nu, 2), -1)
+    horizon_end = today_day + max(policy.watch_days, policy.horizon_days)
+    out = []
+    for u in range(nu):
+        items = []
+        if not np.isnan(risk_day[u]) and risk_day[u] <= horizon_end:
+            items.append((risk_day[u], f"Chance of a capacitor fault within {policy.horizon_days:g} days "
+                                       f"reaches {policy.risk_limit:.0%} {_when(risk_day[u], today_day)} "
+                                       f"(now {risk[u]:.0%})"))
+        for i in first[u]:
+            if i >= 0 and np.isfinite(key[i]) and key[i] <= horizon_end:
+                items.append((key[i], _position_reason(fa, i, key[i], today_day, threshold[i] <= 0)))
+        if has_original[u] and age_day[u] <= horizon_end:
+            items.append((age_day[u], f"Original capacitors pass {policy.calendar_age_years:g} years of age "
+                                      f"{_when(age_day[u], today_day)}"))
+        items.sort(key=lambda x: x[0])
+        words = [w for _, w in items]
+        if storage_reform[u]:
+            words.append(f"Unpowered for {unpowered_months[u]:.0f} months: reform the capacitors "
+                         "(bring the unit up slowly on a current-limited supply) before it goes out")
+        out.append(words)
+    return out

@@ -1,0 +1,54 @@
+"""manage.py due_list: the due-for-recap list, most urgent first."""
+
+import csv
+import datetime as dt
+
+from django.core.management.base import BaseCommand, CommandError
+
+from fleet.models import Unit
+from scheduling.services import forecast_refresh
+
+from ._engine_args import add_engine_arguments, engine_options
+
+COLUMNS = ["asset_tag", "maker", "model", "location", "unit_status", "forecast", "due_date", "risk", "reasons"]
+
+
+class Command(BaseCommand):
+    help = "List the units due for a recap within a number of days, most urgent first."
+
+    def add_arguments(self, parser):
+        parser.add_argument("--within", type=int, default=None, metavar="DAYS",
+                            help="Units due within this many days (default: the policy horizon). "
+                                 "Overdue units are always listed.")
+        parser.add_argument("--csv", action="store_true", help="Write CSV instead of a table.")
+        add_engine_arguments(parser)
+
+    def handle(self, *args, **options):
+        within = options["within"]
+        if within is not None and within < 0:
+            raise CommandError("--within must be zero or more days.")
+        try:
+            run = forecast_refresh(**engine_options(options))
+        except ValueError as exc:
+            raise CommandError(str(exc)) from None
+        days = within if within is not None else int(run.policy.horizon_days)
+        limit = run.today + dt.timedelta(days=days)
+        units = {u.pk: u for u in Unit.objects.select_related("gear_model", "home_location")}
+        rows = []
+        for u in run.urgency_order():
+            d = run.unit_dict(u, with_positions=False)
+            if d["due_date"] is None or dt.date.fromisoformat(d["due_date"]) > limit:
+                continue
+            unit = units[int(run.fleet.unit_id[u])]
+            rows.append([d["asset_tag"], unit.gear_model.maker, unit.gear_model.model_name, unit.home_location.name,
+                         unit.status, d["status"], d["due_date"], f"{d['risk']:.3f}", " | ".join(d["reasons"])])
+        if options["csv"]:
+            writer = csv.writer(self.stdout)
+            writer.writerow(COLUMNS)
+            writer.writerows(rows)
+            return
+        for r in rows:
+            self.stdout.write(f"{r[0]:<12} {r[5]:<8} {r[6]:<10} {r[1]} {r[2]} ({r[3]})")
+            for reason in r[8].split(" | ") if r[8] else []:
+                self.stdout.write(f"    {reason}")
+        self.stdout.write(f"{len(rows)} units due by {limit.isoformat()} (overdue included).")

@@ -1,0 +1,161 @@
+"""Life-engine services: load the fleet, forecast it, store the results.
+
+``forecast_refresh`` is the one entry point (commands, tasks, the check-in
+service and the views call it).  It reads each table once, computes with
+:mod:`scheduling.forecast` and upserts one ``UnitForecast`` per unit, so running
+it twice leaves the same rows.
+"""
+
+import datetime as dt
+
+import numpy as np
+from django.db import transaction
+from django.utils import timezone
+
+from fleet.models import Unit
+
+from .forecast import EngineOptions, Policy, compute, day_to_date
+from .loader import ROLE_NAMES, active_policy, load_fleet
+from .models import UnitForecast
+
+#: Layout of the per-position results stored in UnitForecast.positions.
+POSITION_DTYPE = np.dtype([
+    ("capacitor_id", "<i8"), ("damage", "<f8"), ("esr_ohm", "<f8"), ("capacitance_f", "<f8"),
+    ("threshold", "<f8"), ("reaches_day", "<f8"),
+])
+
+
+def _options_from(law=None, activation_energy_ev=None, esr_feedback=False, weibull_shape=None):
+    kw = {"esr_feedback": esr_feedback}
+    if law:
+        kw["law"] = law
+    if activation_energy_ev is not None:
+        kw["activation_energy_ev"] = activation_energy_ev
+    if weibull_shape is not None:
+        kw["weibull_shape"] = weibull_shape
+    return EngineOptions(**kw)
+
+
+class ForecastRun:
+    """The arrays and results of one forecast, with ways to read them."""
+
+    def __init__(self, fleet, result, policy, today):
+        self.fleet, self.result, self.policy, self.today = fleet, result, policy, today
+        order = np.argsort(fleet.unit_index, kind="stable")
+        self._starts = np.searchsorted(fleet.unit_index[order], np.arange(fleet.n_units), "left")
+        self._ends = np.searchsorted(fleet.unit_index[order], np.arange(fleet.n_units), "right")
+        self._order = order
+
+    def rows_of(self, u):
+        return self._order[self._starts[u]:self._ends[u]]
+
+    def unit_dict(self, u, with_positions=True):
+        fa, r = self.fleet, self.result
+        due = r.due_day[u]
+        out = {
+            "asset_tag": fa.asset_tag[u],
+            "status": r.status[u],
+            "due_date": None if np.isnan(due) else day_to_date(due).isoformat(),
+            "risk": round(float(r.risk[u]), 6),
+            "horizon_days": int(self.policy.horizon_days),
+            "storage_reform": bool(r.storage_reform[u]),
+            "reasons": r.reasons[u],
+        }
+        if with_positions:
+            out["positions"] = [self._position_dict(i) for i in self.rows_of(u)]
+        return out
+
+    def _position_dict(self, i):
+        fa, r = self.fleet, self.result
+        pos = fa.position_index[i]
+        reach = r.reaches_day[i]
+        return {
+            "designator": fa.pos_designator[pos],
+            "role": ROLE_NAMES[int(fa.pos_role[pos])],
+            "damage": round(float(r.damage[i]), 6),
+            "esr_ohm": round(float(r.esr_ohm[i]), 6),
+            "capacitance_f": float(f"{r.capacitance_f[i]:.6g}"),
+            "damage_threshold": round(float(r.threshold[i]), 6),
+            "reaches_threshold_on": None if np.isnan(reach) else day_to_date(reach).isoformat(),
+        }
+
+    def urgency_order(self):
+        """Unit rows, most urgent first: overdue, due, watch, ok; then by due date, then risk."""
+        rank = {"overdue": 0, "due": 1, "watch": 2, "ok": 3}
+        due = np.where(np.isnan(self.result.due_day), np.inf, self.result.due_day)
+        return sorted(range(self.fleet.n_units),
+                      key=lambda u: (rank[self.result.status[u]], due[u], -self.result.risk[u]))
+
+
+def forecast_compute(*, unit_ids=None, today=None, law=None, activation_energy_ev=None, esr_feedback=False,
+                     weibull_shape=None, policy=None):
+    """Compute forecasts without storing them; returns a ForecastRun."""
+    today = today or timezone.localdate()
+    options = _options_from(law, activation_energy_ev, esr_feedback, weibull_shape)
+    policy_row = policy or active_policy()
+    fleet = load_fleet(unit_ids=unit_ids, today=today, min_history_days=options.min_history_days)
+    pol = Policy.from_model(policy_row)
+    result = compute(fleet, today=today, policy=pol, options=options)
+    return ForecastRun(fleet, result, pol, today)
+
+
+def _store(run):
+    fa, r = run.fleet, run.result
+    now = timezone.now()
+    rows = []
+    for u in range(fa.n_units):
+        idx = run.rows_of(u)
+        arr = np.empty(idx.size, dtype=POSITION_DTYPE)
+        arr["capacitor_id"] = fa.cap_id[idx]
+        arr["damage"] = r.damage[idx]
+        arr["esr_ohm"] = r.esr_ohm[idx]
+        arr["capacitance_f"] = r.capacitance_f[idx]
+        arr["threshold"] = r.threshold[idx]
+        arr["reaches_day"] = r.reaches_day[idx]
+        due = r.due_day[u]
+        rows.append(UnitForecast(
+            unit_id=int(fa.unit_id[u]), computed_at=now, status=r.status[u],
+            due_date=None if np.isnan(due) else day_to_date(due), risk=float(r.risk[u]),
+            horizon_days=int(run.policy.horizon_days), max_damage_ratio=float(r.max_damage_ratio[u]),
+            storage_reform=bool(r.storage_reform[u]), reasons=r.reasons[u], positions=arr.tobytes(),
+        ))
+    fields = ["computed_at", "status", "due_date", "risk", "horizon_days", "max_damage_ratio", "storage_reform",
+              "reasons", "positions"]
+    with transaction.atomic():
+        UnitForecast.objects.bulk_create(rows, batch_size=1000, update_conflicts=True, unique_fields=["unit"],
+                                         update_fields=fields)
+    return len(rows)
+
+
+def forecast_refresh(*, unit_ids=None, today=None, **options):
+    """Recompute and store the forecast of the given units (all when None).
+
+    Idempotent: the stored row of each unit is overwritten.  Retired units are
+    not forecast and their old results are removed.  Returns the ForecastRun.
+    """
+    run = forecast_compute(unit_ids=unit_ids, today=today, **options)
+    _store(run)
+    retired = UnitForecast.objects.filter(unit__status=Unit.Status.RETIRED)
+    if unit_ids is not None:
+        retired = retired.filter(unit_id__in=unit_ids)
+    retired.delete()
+    return run
+
+
+def stored_positions(forecast):
+    """The per-position results of a stored UnitForecast as a structured array."""
+    return np.frombuffer(bytes(forecast.positions), dtype=POSITION_DTYPE)
+
+
+def reaches_date(day):
+    return None if np.isnan(day) else day_to_date(day)
+
+
+def today_default():
+    return timezone.localdate()
+
+
+def as_date(value):
+    if isinstance(value, dt.date):
+        return value
+    return dt.date.fromisoformat(value)
