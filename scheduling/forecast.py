@@ -282,7 +282,7 @@ def compute(fa, *, today, policy=None, options=None):
     damage = d_hist + rate * since
 
     # 4. role thresholds
-    threshold = _thresholds(fa, damage)
+    threshold = _thresholds(fa, damage, rate)
 
     # per-capacitor state and crossing dates
     esr = physics.esr_at_damage(fa.esr0_ohm, damage)
@@ -366,7 +366,7 @@ def _circuit(fa, name, rows):
     return fa.pos_circuit[name][fa.position_index[rows]]
 
 
-def _thresholds(fa, damage):
+def _thresholds(fa, damage, rate):
     """Role-aware damage threshold D* per capacitor (step 4)."""
     from .loader import ROLE_CODES
 
@@ -394,28 +394,63 @@ def _thresholds(fa, damage):
             threshold[k] = physics.threshold_reservoir(load[ok], f[ok], fa.capacitance_f[k], fa.esr0_ohm[k], lim[ok])
 
     # Charge pump: the negative rail must stay beyond its minimum magnitude.
-    pump = np.flatnonzero((role == ROLE_CODES["pump_flying"]) | (role == ROLE_CODES["pump_reservoir"]))
-    if pump.size:
-        index = {(int(fa.unit_index[i]), int(fa.position_index[i])): i for i in pump}
-        partner_pos = fa.pos_partner[fa.position_index[pump]]
-        partner = np.array([index.get((int(fa.unit_index[i]), int(p)), -1) for i, p in zip(pump, partner_pos)],
-                           dtype=np.int64)
-        names = ("pump_input_v", "pump_load_a", "pump_freq_hz", "pump_switch_ohm", "pump_min_rail_v")
-        vin, load, f, rsw, vmin = (_circuit(fa, n, pump) for n in names)
-        rsw = np.nan_to_num(rsw)
-        ok = (partner >= 0) & ~np.isnan(vin) & ~np.isnan(load) & ~np.isnan(f) & ~np.isnan(vmin)
-        for flying in (True, False):
-            sel = ok & ((role[pump] == ROLE_CODES["pump_flying"]) == flying)
-            if not np.any(sel):
-                continue
-            me, other = pump[sel], partner[sel]
-            fly, res = (me, other) if flying else (other, me)
-            threshold[me] = physics.threshold_pump(
-                vin[sel], load[sel], f[sel], fa.capacitance_f[fly], fa.capacitance_f[res],
-                fa.esr0_ohm[fly], fa.esr0_ohm[res], rsw[sel], vmin[sel],
-                which="flying" if flying else "reservoir", other_damage=damage[other],
-            )
+    _pump_thresholds(fa, damage, rate, threshold, role)
     return np.clip(threshold, 0.0, DAMAGE_THRESHOLD_CAP)
+
+
+def _pump_thresholds(fa, damage, rate, threshold, role):
+    """Thresholds of the two capacitors of each switched-capacitor inverter.
+
+    Both capacitors age at once, so the rail fails at one moment for the pair:
+    find the time t (days from today) at which ``physics.inverter_output_v``
+    with both parts drifted (damage + rate * t) reaches the minimum rail
+    magnitude, by vectorised bisection; each part's threshold is its damage at
+    that moment.  A pair whose rail fails even with new parts gets 0.
+    """
+    from .loader import ROLE_CODES
+
+    pump = np.flatnonzero((role == ROLE_CODES["pump_flying"]) | (role == ROLE_CODES["pump_reservoir"]))
+    if not pump.size:
+        return
+    index = {(int(fa.unit_index[i]), int(fa.position_index[i])): i for i in pump}
+    fly = np.array([i for i in pump if role[i] == ROLE_CODES["pump_flying"]], dtype=np.int64)
+    if not fly.size:
+        return
+    res = np.array([index.get((int(fa.unit_index[i]), int(fa.pos_partner[fa.position_index[i]])), -1)
+                    for i in fly], dtype=np.int64)
+    names = ("pump_input_v", "pump_load_a", "pump_freq_hz", "pump_switch_ohm", "pump_min_rail_v")
+    vin, load, f, rsw, vmin = (_circuit(fa, n, fly) for n in names)
+    ok = (res >= 0) & ~np.isnan(vin) & ~np.isnan(load) & ~np.isnan(f) & ~np.isnan(vmin)
+    fly, res, vin, load, f, rsw, vmin = (a[ok] for a in (fly, res, vin, load, f, rsw, vmin))
+    if not fly.size:
+        return
+    rsw = np.nan_to_num(rsw)
+
+    def margin(t):
+        d_f = np.maximum(damage[fly] + rate[fly] * t, 0.0)
+        d_r = np.maximum(damage[res] + rate[res] * t, 0.0)
+        v = physics.inverter_output_v(
+            vin, load, f, physics.capacitance_at_damage(fa.capacitance_f[fly], d_f),
+            physics.capacitance_at_damage(fa.capacitance_f[res], d_r),
+            physics.esr_at_damage(fa.esr0_ohm[fly], d_f), physics.esr_at_damage(fa.esr0_ohm[res], d_r), rsw)
+        return -v - vmin  # >= 0 while the rail is deep enough
+
+    with np.errstate(divide="ignore", invalid="ignore"):
+        back = np.minimum(np.where(rate[fly] > 0, damage[fly] / rate[fly], 0.0),
+                          np.where(rate[res] > 0, damage[res] / rate[res], 0.0))
+    lo = -back                                   # the younger part is new here
+    hi = np.full(fly.size, SEARCH_FUTURE_DAYS)
+    fails_new = margin(lo) < 0
+    never = margin(hi) >= 0
+    for _ in range(60):
+        mid = 0.5 * (lo + hi)
+        bad = margin(mid) < 0
+        hi = np.where(bad, mid, hi)
+        lo = np.where(bad, lo, mid)
+    t_fail = np.where(fails_new, -back, hi)
+    for rows in (fly, res):
+        at_fail = np.maximum(damage[rows] + rate[rows] * t_fail, 0.0)
+        threshold[rows] = np.where(never, DAMAGE_THRESHOLD_CAP, np.where(fails_new, 0.0, at_fail))
 
 
 ROLE_WORDS = {

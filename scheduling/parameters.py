@@ -1,0 +1,134 @@
+"""Default constants for the capacitor physics in :mod:`scheduling.physics`.
+
+Pure Python, no Django.  Every constant says where it comes from, using the
+markers of ``docs/references.md`` (shared docs):
+
+* **[V]** read in a published source;
+* **[M]** from memory: confirm before citing it as a standard;
+* **[C]** computed from a formula;
+* **[CP]** common practice, no single source;
+* **numerical** a guard or a solver setting, not a physical value.
+
+Units are in the names (``_H`` hours, ``_C`` degC, ``_K`` kelvin or a
+temperature difference, ``_EV`` electronvolt, ``_OHM``, ``_F``, ``_HZ``,
+``_V``, ``_W_PER_CM2_K``).
+"""
+
+import scipy.constants
+
+# --- Physical constants ----------------------------------------------------
+
+#: Boltzmann constant [eV/K].  [V] CODATA via
+#: ``scipy.constants.physical_constants['Boltzmann constant in eV/K']``;
+#: exact since the 2019 SI redefinition (8.617333262e-5 eV/K).
+BOLTZMANN_EV_PER_K = scipy.constants.physical_constants["Boltzmann constant in eV/K"][0]
+
+#: 0 degC in kelvin [K].  [V] SI definition (``scipy.constants.zero_Celsius``).
+ZERO_CELSIUS_K = scipy.constants.zero_Celsius
+
+#: Absolute zero in degC.  Temperatures at or below it are rejected.
+ABSOLUTE_ZERO_C = -ZERO_CELSIUS_K
+
+# --- Temperature life laws -------------------------------------------------
+
+#: Temperature step that halves life in the 10 K rule [K].  [V] a capacitor
+#: manufacturer's primer: "for every rise in usage temperature by 10 degrees
+#: centigrade, the service life is shortened to one half".
+TEN_K_RULE_STEP_K = 10.0
+
+#: Life law used when none is given: ``'10k'`` (the 10 K rule) or
+#: ``'arrhenius'``.  [CP] the 10 K rule is what manufacturers' life
+#: calculators use for aluminium electrolytics.
+DEFAULT_LAW = "10k"
+
+#: Activation energy that makes a single-Ea Arrhenius law halve life between
+#: 95 and 105 degC, ``k*ln2*T1*T2/(T2 - T1)`` [eV].  [C] references.md §1.
+#: Not a default for the Arrhenius law (it must be chosen explicitly): the
+#: 10 K rule is not one Arrhenius law (0.745 eV at 75->85, 0.567 at 30->40).
+TEN_K_EQUIVALENT_EA_EV = 0.8315
+
+# --- Ripple self-heating ---------------------------------------------------
+
+#: Heat-transfer coefficient from the can surface to the air [W/(cm^2 K)].
+#: [M] application guides quote 1.5-2.5e-3 W/(cm^2 K); we take the low
+#: (conservative: hotter core) end.  For scale, radiation alone gives about
+#: 0.55e-3 W/(cm^2 K) at emissivity 0.9 and 300 K [C].
+HEAT_TRANSFER_W_PER_CM2_K = 1.5e-3
+
+#: Frequency at which data sheets state tan delta [Hz].  [V, data-sheet
+#: convention] 120 Hz (100 Hz in some European series).
+TAN_DELTA_FREQ_HZ = 120.0
+
+# --- Drift with damage (D = 1 is end of life) ------------------------------
+
+#: ESR at damage 1 as a multiple of the initial ESR.  [V, secondary]
+#: IEC 60384-4 endurance limits as quoted in series data sheets (tan delta /
+#: ESR up to 1.3-2x the initial limit) and the practical criterion "ESR about
+#: twice rated" (public encyclopedia article); references.md §2.
+ESR_RATIO_AT_END = 2.0
+
+#: Fractional capacitance loss at damage 1.  [V, secondary] IEC 60384-4
+#: endurance limits as quoted in series data sheets (+-15..20 %); [M] the
+#: prognostics literature also uses -20 %.  references.md §2.
+CAPACITANCE_LOSS_AT_END = 0.2
+
+#: Smallest capacitance the linear drift law returns, as a fraction of the
+#: initial value.  numerical: ``C0*(1 - 0.2*D)`` reaches zero at D = 5, and a
+#: zero capacitance would divide by zero in the circuit formulas.  Far beyond
+#: any requirement threshold, so it does not change any threshold found below
+#: ``DAMAGE_MAX``.
+CAPACITANCE_FLOOR_FRACTION = 1e-3
+
+#: Damage threshold of a "general" role: the end-of-life limits themselves.
+#: [CP] references.md §2 / design brief §5.
+GENERAL_DAMAGE_THRESHOLD = 1.0
+
+# --- Solvers ---------------------------------------------------------------
+
+#: Upper end of the damage bracket searched for a requirement threshold, and
+#: the cap of the damage integrated with ESR feedback.  numerical: at D = 20
+#: the ESR has grown 2**20 (about a million) times; a threshold beyond it is
+#: reported as ``inf`` ("never within the drift model").
+DAMAGE_MAX = 20.0
+
+#: Fixed number of bisection steps on [0, DAMAGE_MAX].  numerical: the bracket
+#: shrinks to 20 / 2**60 (about 2e-17), below double precision near D = 1.
+BISECTION_ITERATIONS = 60
+
+#: Fixed RK4 steps over one constant-ambient interval in
+#: ``damage_with_esr_feedback``.  numerical: agrees with
+#: ``scipy.integrate.solve_ivp`` to about 1e-10 relative for damage growth of
+#: up to about 1.4 in one interval (scheduling/tests/test_physics.py); near
+#: thermal runaway use more steps or shorter intervals.
+RK4_STEPS = 200
+
+# --- Circuits --------------------------------------------------------------
+
+#: Weight of the flying (pump) capacitor's ESR in a charge-pump inverter's
+#: output resistance.  [V] classic converter data sheet (ICL7660 family):
+#: ``Ro = 2(23) + 1/(f_pump*C1) + 4*ESR_C1 + ESR_C2 ~= 46 + 20 + 5*ESR_C``;
+#: its "5" is 4 + 1 for equal ESRs, not a rounding of the 4.
+FLYING_ESR_FACTOR = 4.0
+
+#: Peak charging current of a capacitor-input rectifier reservoir, as a
+#: multiple of the DC load current.  [CP] short conduction angles give peaks
+#: of about 4-10x the average; 5x is a middle value for mains supplies.
+PEAK_TO_LOAD_CURRENT_RATIO = 5.0
+
+#: Highest acceptable high-pass corner of an audio coupling capacitor [Hz].
+#: [CP] the bottom of the audio band (design brief §5: "e.g. 20 Hz").
+COUPLING_MAX_CORNER_HZ = 20.0
+
+# --- Scatter ---------------------------------------------------------------
+
+#: Weibull shape (beta) of wear-out scatter around the predicted damage.
+#: [M] wear-out beta about 2-6 for electrolytic capacitors; 3 is mid-range.
+#: No published beta for electrolytic wear-out has been confirmed yet
+#: (references.md "Open").
+WEIBULL_SHAPE = 3.0
+
+# --- Safety ----------------------------------------------------------------
+
+#: Voltage treated as safe to touch after discharge [V d.c.].  [V] SELV per
+#: IEC 60335-1 as quoted in IEC Electropedia: 60 V d.c. (references.md §7).
+SAFE_VOLTAGE_V = 60.0
