@@ -120,6 +120,8 @@ if DATABASES["default"]["ENGINE"] == "django.db.backends.sqlite3":
         "init_command", "PRAGMA journal_mode=WAL; PRAGMA synchronous=NORMAL;"
     )
     DATABASES["default"]["OPTIONS"].setdefault("timeout", 20)
+    # A file test database, so a worker process in an integration test sees it.
+    DATABASES["default"].setdefault("TEST", {})["NAME"] = str(VAR_DIR / f"test-{os.getpid()}.sqlite3")
 
 DEFAULT_AUTO_FIELD = "django.db.models.BigAutoField"
 
@@ -172,17 +174,27 @@ else:
     EMAIL_FILE_PATH = VAR_DIR / "mail"
 DEFAULT_FROM_EMAIL = env_str("DEFAULT_FROM_EMAIL", "recap-scheduler@localhost")
 
-# Background jobs.  REDIS_URL unset: tasks run in the web process (no broker,
-# no Redis needed).  REDIS_URL set: Redis is the Celery broker and result store.
+# Background jobs.  REDIS_URL set: Redis is the Celery broker and result
+# store (production; any number of workers on any hosts).  Unset: the embedded
+# default, a broker in folders under var/celery that one machine's worker
+# (`make run` starts it, with the schedule) reads; no Redis needed.
 REDIS_URL = env_str("REDIS_URL")
+CELERY_FOLDER = VAR_DIR / "celery"
 if REDIS_URL:
     CELERY_BROKER_URL = REDIS_URL
     CELERY_RESULT_BACKEND = REDIS_URL
-    CELERY_TASK_ALWAYS_EAGER = False
 else:
-    CELERY_BROKER_URL = "memory://"
+    CELERY_BROKER_URL = "filesystem://"
+    CELERY_BROKER_TRANSPORT_OPTIONS = {
+        "data_folder_in": str(CELERY_FOLDER / "queue"),
+        "data_folder_out": str(CELERY_FOLDER / "queue"),
+        "processed_folder": str(CELERY_FOLDER / "processed"),
+        "store_processed": False,
+        "polling_interval": 0.2,
+    }
     CELERY_RESULT_BACKEND = None
-    CELERY_TASK_ALWAYS_EAGER = env_bool("CELERY_TASK_ALWAYS_EAGER", True)
+CELERY_TASK_ALWAYS_EAGER = env_bool("CELERY_TASK_ALWAYS_EAGER", False)
+CELERY_BEAT_SCHEDULE_FILENAME = str(CELERY_FOLDER / "beat-schedule")
 CELERY_TASK_EAGER_PROPAGATES = True
 CELERY_TASK_ACKS_LATE = True
 CELERY_TASK_TIME_LIMIT = env_int("CELERY_TASK_TIME_LIMIT", 900)

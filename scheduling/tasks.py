@@ -1,0 +1,31 @@
+"""Background jobs of the life engine: thin wrappers around services.
+
+Arguments are ids or nothing; each task is safe to run twice (the services
+overwrite their results), has time limits, and retries on database hiccups.
+"""
+
+from celery import shared_task
+from django.db import OperationalError
+from django.utils import timezone
+
+from .services import forecast_refresh
+from .thermal import thermal_advance_storage
+
+RETRY = dict(autoretry_for=(OperationalError,), retry_backoff=True, max_retries=5, acks_late=True)
+
+
+@shared_task(name="scheduling.fleet_nightly_refresh", soft_time_limit=1200, time_limit=1320, **RETRY)
+def fleet_nightly_refresh():
+    """Count storage up to now for every unit, then recompute the whole fleet's forecast."""
+    advanced = thermal_advance_storage(until=timezone.now())
+    run = forecast_refresh()
+    return {"advanced": advanced, "forecast": run.fleet.n_units}
+
+
+@shared_task(name="scheduling.unit_forecast_refresh", soft_time_limit=60, time_limit=90, **RETRY)
+def unit_forecast_refresh(unit_id):
+    """Recompute one unit's forecast (after an edit in the admin or an import)."""
+    if not isinstance(unit_id, int) or isinstance(unit_id, bool) or unit_id <= 0:
+        raise ValueError(f"unit_id must be a positive whole number, not {unit_id!r}")
+    run = forecast_refresh(unit_ids=[unit_id])
+    return {"forecast": run.fleet.n_units}
