@@ -11,7 +11,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 from django.db import connection
-from django.db.models import DurationField, ExpressionWrapper, F, Sum
+from django.db.models import F, FloatField, Func, Sum
 
 from fleet.models import GearModel, MaintenancePolicy, Position, Rental, Unit, UnitCapacitor
 
@@ -106,12 +106,29 @@ def _f(x):
     return np.nan if x is None else float(x)
 
 
+#: One capacitor row as read from the database (NULLs come back as -1).
+CAPACITOR_ROW = np.dtype([
+    ("id", "<i8"), ("unit_id", "<i8"), ("position_id", "<i8"), ("capacitance_uf", "<f8"),
+    ("rated_voltage_v", "<f8"), ("rated_temp_c", "<f8"), ("rated_life_h", "<f8"), ("esr_ohm", "<f8"),
+    ("tan_delta", "<f8"), ("diameter_mm", "<f8"), ("length_mm", "<f8"), ("installed_on", "<U10"),
+    ("is_original", "?"), ("baseline_id", "<i8"),
+])
+
+
 def _capacitor_sql(unit_filter_sql):
-    t = UnitCapacitor._meta.db_table
-    cols = ("id", "unit_id", "position_id", "capacitance_uf", "rated_voltage_v", "rated_temp_c", "rated_life_h",
-            "esr_ohm", "tan_delta", "diameter_mm", "length_mm", "installed_on", "is_original", "baseline_id")
     qn = connection.ops.quote_name
-    sql = f"SELECT {', '.join(qn(c) for c in cols)} FROM {qn(t)}"
+    t = UnitCapacitor._meta.db_table
+    select = []
+    for name in CAPACITOR_ROW.names:
+        col = qn(name)
+        if name in ("esr_ohm", "tan_delta"):
+            col = f"COALESCE({col}, -1.0)"
+        elif name == "baseline_id":
+            col = f"COALESCE({col}, -1)"
+        elif name == "installed_on":
+            col = f"CAST({col} AS TEXT)"  # text: no per-row date conversion; numpy parses it
+        select.append(col)
+    sql = f"SELECT {', '.join(select)} FROM {qn(t)}"
     if unit_filter_sql:
         sql += f" WHERE {qn('unit_id')} IN ({unit_filter_sql})"
     sql += f" ORDER BY {qn('unit_id')}, {qn('id')}"
@@ -126,56 +143,52 @@ def capacitor_count(unit_ids=None):
 
 
 def read_capacitors(unit_ids=None, bare=False):
-    """Read the unit capacitor rows in chunks.  ``bare=True`` only fetches (the
-    benchmark's floor); otherwise returns a dict of arrays."""
+    """Read the unit capacitor rows in chunks into one structured array.
+
+    Each chunk goes from the cursor straight into numpy (``np.fromiter`` of
+    the row tuples), so memory is the array plus one chunk of tuples.
+    ``bare=True`` only fetches the rows (the benchmark's floor) and returns
+    their number.
+    """
     ids_sql = None
     params = []
     if unit_ids is not None:
         ids_sql = ", ".join(["%s"] * len(unit_ids)) or "NULL"
         params = list(unit_ids)
-    n = capacitor_count(unit_ids)
-    out = None
-    if not bare:
-        out = {
-            "id": np.empty(n, np.int64), "unit_id": np.empty(n, np.int64), "position_id": np.empty(n, np.int64),
-            "capacitance_uf": np.empty(n), "rated_voltage_v": np.empty(n), "rated_temp_c": np.empty(n),
-            "rated_life_h": np.empty(n), "esr_ohm": np.empty(n), "tan_delta": np.empty(n),
-            "diameter_mm": np.empty(n), "length_mm": np.empty(n), "installed_day": np.empty(n),
-            "is_original": np.empty(n, bool), "baseline_id": np.empty(n, np.int64),
-        }
-    pos = 0
+    chunks = []
+    count = 0
     with connection.cursor() as cursor:
         cursor.execute(_capacitor_sql(ids_sql), params)
         while True:
             rows = cursor.fetchmany(CHUNK_ROWS)
             if not rows:
                 break
-            if bare:
-                pos += len(rows)
-                continue
-            k = len(rows)
-            if pos + k > n:  # rows added since the count: grow
-                for key, arr in out.items():
-                    out[key] = np.concatenate([arr, np.empty(pos + k - n, arr.dtype)])
-                n = pos + k
-            cols = list(zip(*rows))
-            sl = slice(pos, pos + k)
-            out["id"][sl] = cols[0]
-            out["unit_id"][sl] = cols[1]
-            out["position_id"][sl] = cols[2]
-            for j, key in enumerate(("capacitance_uf", "rated_voltage_v", "rated_temp_c", "rated_life_h"), start=3):
-                out[key][sl] = cols[j]
-            out["esr_ohm"][sl] = np.array(cols[7], dtype=float)  # None -> nan
-            out["tan_delta"][sl] = np.array(cols[8], dtype=float)
-            out["diameter_mm"][sl] = cols[9]
-            out["length_mm"][sl] = cols[10]
-            out["installed_day"][sl] = [_day(d) for d in cols[11]]
-            out["is_original"][sl] = cols[12]
-            out["baseline_id"][sl] = [-1 if b is None else b for b in cols[13]]
-            pos += k
+            count += len(rows)
+            if not bare:
+                chunks.append(np.fromiter(rows, dtype=CAPACITOR_ROW, count=len(rows)))
     if bare:
-        return pos
-    return {key: arr[:pos] for key, arr in out.items()}
+        return count
+    arr = np.concatenate(chunks) if chunks else np.zeros(0, dtype=CAPACITOR_ROW)
+    out = {name: arr[name] for name in CAPACITOR_ROW.names if name != "installed_on"}
+    out["installed_day"] = arr["installed_on"].astype("datetime64[D]").astype(np.int64).astype(float)
+    for name in ("esr_ohm", "tan_delta"):
+        out[name] = np.where(out[name] < 0, np.nan, out[name])
+    return out
+
+
+class HoursBetween(Func):
+    """Hours from the first timestamp to the second, computed in the database."""
+
+    output_field = FloatField()
+    arity = 2
+
+    def as_sqlite(self, compiler, connection, **extra):
+        return self.as_sql(compiler, connection, template="((julianday(%(expressions)s)) * 24.0)",
+                           arg_joiner=") - julianday(", **extra)
+
+    def as_postgresql(self, compiler, connection, **extra):
+        return self.as_sql(compiler, connection, template="(EXTRACT(EPOCH FROM (%(expressions)s)) / 3600.0)",
+                           arg_joiner=" - ", **extra)
 
 
 def recent_use(unit_ids, today):
@@ -188,10 +201,18 @@ def recent_use(unit_ids, today):
     rows = qs.values("unit_id").annotate(
         powered=Sum("powered_hours"),
         weighted=Sum(F("powered_hours") * F("venue_ambient_c")),
-        out=Sum(ExpressionWrapper(F("in_at") - F("out_at"), output_field=DurationField())),
+        out=Sum(HoursBetween("in_at", "out_at")),
     )
-    return {r["unit_id"]: (r["powered"] or 0.0, r["out"].total_seconds() / 3600.0 if r["out"] else 0.0,
+    return {r["unit_id"]: (r["powered"] or 0.0, r["out"] or 0.0,
                            (r["weighted"] / r["powered"]) if r["powered"] else np.nan) for r in rows}
+
+
+def _index_of(sorted_ids, ids):
+    """Position of each of ``ids`` in the ascending ``sorted_ids``; -1 where absent."""
+    if sorted_ids.size == 0:
+        return np.full(ids.shape, -1, dtype=np.int64)
+    k = np.clip(np.searchsorted(sorted_ids, ids), 0, sorted_ids.size - 1)
+    return np.where(sorted_ids[k] == ids, k, -1).astype(np.int64)
 
 
 def load_fleet(*, unit_ids=None, today, min_history_days=180):
@@ -245,20 +266,23 @@ def load_fleet(*, unit_ids=None, today, min_history_days=180):
     use_o[settled & np.isnan(use_o)] = 0.0
 
     caps = read_capacitors(filter_ids)
-    cap_unit_index = np.array([uidx.get(u, -1) for u in caps["unit_id"].tolist()], dtype=np.int64)
+    unit_ids_arr = np.array(ids, dtype=np.int64)  # ascending (ordered by pk)
+    cap_unit_index = _index_of(unit_ids_arr, caps["unit_id"])
     keep = cap_unit_index >= 0  # capacitors of retired units are left out
     caps = {k: v[keep] for k, v in caps.items()}
     cap_unit_index = cap_unit_index[keep]
 
-    pos_rows = list(Position.objects.filter(pk__in=set(caps["position_id"].tolist())).values_list(
+    pos_qs = Position.objects.order_by("pk")
+    if filter_ids is not None:
+        pos_qs = pos_qs.filter(pk__in=set(caps["position_id"].tolist()))
+    pos_rows = list(pos_qs.values_list(
         "pk", "gear_model_id", "designator", "role", "ripple_current_a", "pump_partner", *CIRCUIT_FIELDS))
-    pidx = {p[0]: k for k, p in enumerate(pos_rows)}
     by_model_designator = {(p[1], p[2]): k for k, p in enumerate(pos_rows)}
     partner = np.array([by_model_designator.get((p[1], p[5]), -1) if p[5] else -1 for p in pos_rows],
                        dtype=np.int64)
     circuit = {name: np.array([_f(p[6 + j]) for p in pos_rows]) for j, name in enumerate(CIRCUIT_FIELDS)}
 
-    snap_ids = sorted({b for b in caps["baseline_id"].tolist() if b >= 0})
+    snap_ids = np.unique(caps["baseline_id"][caps["baseline_id"] >= 0]).tolist()
     sidx = {s: k for k, s in enumerate(snap_ids)}
     sp = np.zeros((len(snap_ids), H.N_BINS))
     su = np.zeros((len(snap_ids), H.N_BINS))
@@ -285,12 +309,12 @@ def load_fleet(*, unit_ids=None, today, min_history_days=180):
         model_rise_k=np.array([m[1] for m in models], dtype=float),
         model_hours_per_day=np.array([m[2] for m in models], dtype=float),
         cap_id=caps["id"], unit_index=cap_unit_index,
-        position_index=np.array([pidx[p] for p in caps["position_id"].tolist()], dtype=np.int64),
+        position_index=_index_of(np.array([p[0] for p in pos_rows], dtype=np.int64), caps["position_id"]),
         capacitance_f=caps["capacitance_uf"] * 1e-6, rated_voltage_v=caps["rated_voltage_v"],
         rated_temp_c=caps["rated_temp_c"], rated_life_h=caps["rated_life_h"], esr0_ohm=esr0,
         diameter_mm=caps["diameter_mm"], length_mm=caps["length_mm"], installed_day=caps["installed_day"],
         is_original=caps["is_original"],
-        baseline_index=np.array([sidx.get(b, -1) for b in caps["baseline_id"].tolist()], dtype=np.int64),
+        baseline_index=_index_of(np.array(snap_ids, dtype=np.int64), caps["baseline_id"]),
         pos_id=np.array([p[0] for p in pos_rows], dtype=np.int64),
         pos_designator=[p[2] for p in pos_rows],
         pos_role=np.array([ROLE_CODES.get(p[3], 0) for p in pos_rows], dtype=np.int64),

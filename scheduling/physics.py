@@ -47,10 +47,13 @@ def _check(name, value, kind="finite", allow_inf=False):
         raise ValueError(f"{name} must be a number or an array of numbers") from None
     if arr.size == 0:
         return arr
-    lo, hi = np.min(arr), np.max(arr)
-    if np.isnan(lo) or np.isnan(hi):
+    if arr.ndim == 0:
+        lo = hi = float(arr)
+    else:  # the ufunc reductions directly: no per-call wrapper overhead
+        lo, hi = float(np.minimum.reduce(arr, axis=None)), float(np.maximum.reduce(arr, axis=None))
+    if lo != lo or hi != hi:  # NaN propagates through min/max
         raise ValueError(f"{name} must not be NaN")
-    if not allow_inf and (np.isinf(lo) or np.isinf(hi)):
+    if not allow_inf and (lo in (np.inf, -np.inf) or hi in (np.inf, -np.inf)):
         raise ValueError(f"{name} must be finite")
     if kind == "positive" and lo <= 0:
         raise ValueError(f"{name} must be > 0 (got {lo:g})")
@@ -66,7 +69,9 @@ def _check(name, value, kind="finite", allow_inf=False):
 def _check_range(name, value, low, high, low_open=False):
     """Scalar-or-array check ``low <(=) value <= high``."""
     arr = _check(name, value)
-    if arr.size and (np.min(arr) < low or (low_open and np.min(arr) == low) or np.max(arr) > high):
+    if arr.size:
+        lo, hi = float(np.minimum.reduce(arr, axis=None)), float(np.maximum.reduce(arr, axis=None))
+    if arr.size and (lo < low or (low_open and lo == low) or hi > high):
         raise ValueError(f"{name} must lie in {'(' if low_open else '['}{low:g}, {high:g}]")
     return arr
 
@@ -963,6 +968,41 @@ def _cumulative_hazard(damage, threshold, shape):
     with np.errstate(divide="ignore", invalid="ignore"):
         h = _LN2 * (damage / threshold) ** shape
     return np.where(threshold == 0, np.inf, h)
+
+
+def cumulative_hazard(damage, damage_threshold, weibull_shape):
+    """Weibull cumulative hazard in damage, with the median at the threshold.
+
+    Parameters
+    ----------
+    damage : float or array-like
+        Damage [-], >= 0.
+    damage_threshold : float or array-like
+        Median damage at failure D* [-], >= 0 (0: already failed, hazard inf).
+    weibull_shape : float or array-like
+        Weibull shape beta, > 0.
+
+    Returns
+    -------
+    float or ndarray
+        Cumulative hazard [-]: ``ln2 * (D/D*)**beta``, so that
+        ``failure_probability = 1 - exp(-hazard)``.  For a group of positions
+        the survival over an interval is ``exp(-sum(hazard_later - hazard_now))``,
+        which is how a unit's risk is summed without a product of many terms.
+
+    References
+    ----------
+    The two-parameter Weibull distribution, e.g. ``scipy.stats.weibull_min``:
+    cumulative hazard ``(x/eta)**beta`` with ``eta = D*/(ln 2)**(1/beta)``.
+
+    Examples
+    --------
+    >>> round(cumulative_hazard(1.0, 1.0, 3.0), 6)
+    0.693147
+    """
+    d = _check("damage", damage, "nonnegative")
+    t, b = _risk_args(damage_threshold, weibull_shape)
+    return _out(_cumulative_hazard(d, t, b))
 
 
 def _risk_args(threshold, shape):

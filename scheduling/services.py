@@ -9,7 +9,7 @@ it twice leaves the same rows.
 import datetime as dt
 
 import numpy as np
-from django.db import transaction
+from django.db import connection, transaction
 from django.utils import timezone
 
 from fleet.models import Unit
@@ -100,6 +100,8 @@ def forecast_compute(*, unit_ids=None, today=None, law=None, activation_energy_e
 
 
 def _store(run):
+    """Upsert one UnitForecast row per unit with a single prepared statement
+    (``INSERT ... ON CONFLICT (unit_id) DO UPDATE``, SQLite and PostgreSQL)."""
     fa, r = run.fleet, run.result
     now = timezone.now()
     rows = []
@@ -113,17 +115,31 @@ def _store(run):
         arr["threshold"] = r.threshold[idx]
         arr["reaches_day"] = r.reaches_day[idx]
         due = r.due_day[u]
-        rows.append(UnitForecast(
-            unit_id=int(fa.unit_id[u]), computed_at=now, status=r.status[u],
-            due_date=None if np.isnan(due) else day_to_date(due), risk=float(r.risk[u]),
-            horizon_days=int(run.policy.horizon_days), max_damage_ratio=float(r.max_damage_ratio[u]),
-            storage_reform=bool(r.storage_reform[u]), reasons=r.reasons[u], positions=arr.tobytes(),
+        rows.append((
+            int(fa.unit_id[u]), now, r.status[u], None if np.isnan(due) else day_to_date(due),
+            float(r.risk[u]), int(run.policy.horizon_days), float(r.max_damage_ratio[u]),
+            bool(r.storage_reform[u]), r.reasons[u], arr.tobytes(),
         ))
-    fields = ["computed_at", "status", "due_date", "risk", "horizon_days", "max_damage_ratio", "storage_reform",
-              "reasons", "positions"]
-    with transaction.atomic():
-        UnitForecast.objects.bulk_create(rows, batch_size=1000, update_conflicts=True, unique_fields=["unit"],
-                                         update_fields=fields)
+    columns = ["unit_id", "computed_at", "status", "due_date", "risk", "horizon_days", "max_damage_ratio",
+               "storage_reform", "reasons", "positions"]
+    qn = connection.ops.quote_name
+    table = qn(UnitForecast._meta.db_table)
+    updates = ", ".join(f"{qn(c)} = excluded.{qn(c)}" for c in columns[1:])
+    sql = (f"INSERT INTO {table} ({', '.join(qn(c) for c in columns)}) "
+           f"VALUES ({', '.join(['%s'] * len(columns))}) "
+           f"ON CONFLICT ({qn('unit_id')}) DO UPDATE SET {updates}")
+    meta = UnitForecast._meta
+    computed_at = meta.get_field("computed_at").get_db_prep_save(now, connection)
+    due_field, reasons_field = meta.get_field("due_date"), meta.get_field("reasons")
+    positions_field = meta.get_field("positions")
+    with transaction.atomic(), connection.cursor() as cursor:
+        prepared = [
+            (row[0], computed_at, row[2], due_field.get_db_prep_save(row[3], connection), row[4], row[5], row[6],
+             row[7], reasons_field.get_db_prep_save(row[8], connection),
+             positions_field.get_db_prep_save(row[9], connection))
+            for row in rows
+        ]
+        cursor.executemany(sql, prepared)
     return len(rows)
 
 
