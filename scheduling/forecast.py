@@ -489,7 +489,8 @@ def _position_reason(fa, i, reach_day, today_day, threshold_is_zero=False):
     units of one gear model share their positions' wording."""
     day = int(np.floor(reach_day))
     past = reach_day < today_day
-    key = (id(fa), int(fa.position_index[i]), _month(day), past, bool(threshold_is_zero))
+    key = (id(fa), int(fa.position_index[i]), _month(day), past, bool(threshold_is_zero),
+           round(float(_DAMAGE_NOW[0][i]), 1) if past and _DAMAGE_NOW else None)
     text = _REASON_CACHE.get(key)
     if text is None:
         if len(_REASON_CACHE) > 100_000:
@@ -499,6 +500,7 @@ def _position_reason(fa, i, reach_day, today_day, threshold_is_zero=False):
 
 
 _REASON_CACHE = {}
+_DAMAGE_NOW = []  # (damage, threshold) of the forecast being worded
 
 
 def _position_reason_text(fa, i, reach_day, today_day, threshold_is_zero=False):
@@ -520,12 +522,19 @@ def _position_reason_text(fa, i, reach_day, today_day, threshold_is_zero=False):
         what = f"bass roll-off would rise above {c['coupling_max_corner_hz'][pos]:g} Hz"
     else:
         what = "reaches end-of-life drift (ESR doubled, capacitance down 20%)"
+    if reach_day < today_day and _DAMAGE_NOW:
+        damage, threshold = _DAMAGE_NOW[0][i], _DAMAGE_NOW[1][i]
+        what = what.replace("would rise", "has risen").replace("would exceed", "exceeds").replace(
+            "would sag", "sags").replace("reaches", "is past")
+        return (f"{des} {ROLE_WORDS[role]}: {what} already (damage {damage:.1f} against a threshold of "
+                f"{threshold:.2f})")
     return f"{des} {ROLE_WORDS[role]}: {what} {when}"
 
 
 def _reasons(fa, policy, today_day, damage, threshold, reaches, risk, risk_day, age_day, has_original,
              storage_reform, unpowered_months):
     nu = fa.n_units
+    _DAMAGE_NOW[:] = [damage, threshold]
     key = np.where(np.isnan(reaches), np.inf, reaches)
     first = _first_per_unit(fa.unit_index, key, nu, k=2) if fa.n_caps else np.full((nu, 2), -1)
     horizon_end = today_day + max(policy.watch_days, policy.horizon_days)
@@ -533,9 +542,13 @@ def _reasons(fa, policy, today_day, damage, threshold, reaches, risk, risk_day, 
     for u in range(nu):
         items = []
         if not np.isnan(risk_day[u]) and risk_day[u] <= horizon_end:
-            items.append((risk_day[u], f"Chance of a capacitor fault within {policy.horizon_days:g} days "
-                                       f"reaches {policy.risk_limit:.0%} {_when(risk_day[u], today_day)} "
-                                       f"(now {risk[u]:.0%})"))
+            if risk_day[u] <= today_day:
+                text = (f"Chance of a capacitor fault within {policy.horizon_days:g} days is {risk[u]:.0%} now "
+                        f"(house limit {policy.risk_limit:.0%})")
+            else:
+                text = (f"Chance of a capacitor fault within {policy.horizon_days:g} days reaches "
+                        f"{policy.risk_limit:.0%} {_when(risk_day[u], today_day)} (now {risk[u]:.0%})")
+            items.append((risk_day[u], text))
         for i in first[u]:
             if i >= 0 and np.isfinite(key[i]) and key[i] <= horizon_end:
                 items.append((key[i], _position_reason(fa, i, key[i], today_day, threshold[i] <= 0)))
