@@ -152,7 +152,7 @@ def test_pump_capacitor_with_small_margin_is_named_first(effects_model, attic):
     firsts = sorted(d["positions"], key=lambda p: p["reaches_threshold_on"] or "9999")
 
     assert firsts[0]["designator"] == "C31"
-    assert any(r.startswith("C31 pump flying: negative rail would sag below 4.1 V") for r in d["reasons"])
+    assert any(r.startswith("C31 pump flying: negative rail") and "below 4.1 V" in r for r in d["reasons"])
 
 
 def test_ten_kelvin_fast_path_equals_the_general_histogram_sum(effects_model, attic, store):
