@@ -4,4 +4,12 @@ from . import views
 
 urlpatterns = [
     path("", views.home, name="home"),
+    path("units/", views.unit_list, name="unit_list"),
+    path("units/<str:asset_tag>/", views.unit_detail, name="unit_detail"),
+    path("desk/scan/", views.desk_scan, name="desk_scan"),
+    path("desk/check-out/", views.check_out, name="check_out"),
+    path("desk/check-in/", views.check_in, name="check_in"),
+    path("workshop/", views.workshop, name="workshop"),
+    path("data/import/", views.csv_import, name="csv_import"),
+    path("data/export/<slug:kind>.csv", views.csv_export, name="csv_export"),
 ]

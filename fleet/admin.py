@@ -1,0 +1,302 @@
+"""Admin for the fleet register.
+
+Reference data (locations, gear models and their capacitor positions,
+policies) is edited here.  Units added here get their capacitor population and
+thermal history through the same services the rest of the app uses.  Hires and
+fitted capacitors are shown read-only: they change only through the rental
+desk and recorded services, so the thermal histories stay true.
+"""
+
+from django.contrib import admin
+from django.urls import reverse
+from django.utils.html import format_html
+
+from .models import (
+    GearModel,
+    Location,
+    MaintenancePolicy,
+    Measurement,
+    Position,
+    Rental,
+    ReplacedPart,
+    ServiceRecord,
+    TemperatureSample,
+    Unit,
+    UnitCapacitor,
+)
+from .services import unit_populate
+from .values import format_capacitance
+
+# A location with more samples than this links to the sample list instead of
+# showing them all inline on its page.
+SAMPLE_INLINE_LIMIT = 400
+
+RATING_COLUMNS = (
+    "capacitance_uf", "rated_voltage_v", "rated_temp_c", "rated_life_h", "esr_ohm", "tan_delta",
+    "diameter_mm", "length_mm", "mount",
+)
+
+
+# --- locations -------------------------------------------------------------------
+
+class TemperatureSampleInline(admin.TabularInline):
+    model = TemperatureSample
+    fields = ("taken_at", "temp_c")
+    extra = 0
+    classes = ["collapse"]
+
+
+@admin.register(Location)
+class LocationAdmin(admin.ModelAdmin):
+    list_display = ("name", "kind", "profile", "constant_temp_c", "unit_count")
+    list_filter = ("kind", "profile")
+    search_fields = ("name", "notes")
+    readonly_fields = ("sample_summary",)
+    fields = ("name", "kind", "profile", "constant_temp_c", "monthly_temps_c", "notes", "sample_summary")
+    inlines = [TemperatureSampleInline]
+
+    def get_queryset(self, request):
+        from django.db.models import Count
+
+        return super().get_queryset(request).annotate(_units=Count("units", distinct=True))
+
+    @admin.display(description="units", ordering="_units")
+    def unit_count(self, obj):
+        return obj._units
+
+    @admin.display(description="temperature samples")
+    def sample_summary(self, obj):
+        if obj is None or obj.pk is None:
+            return "-"
+        n = obj.samples.count()
+        url = reverse("admin:fleet_temperaturesample_changelist") + f"?location__id__exact={obj.pk}"
+        return format_html('{} sample(s) - <a href="{}">open the sample list</a>', n, url)
+
+    def get_inline_instances(self, request, obj=None):
+        if obj is not None and obj.samples.count() > SAMPLE_INLINE_LIMIT:
+            return []
+        return super().get_inline_instances(request, obj)
+
+
+@admin.register(TemperatureSample)
+class TemperatureSampleAdmin(admin.ModelAdmin):
+    list_display = ("location", "taken_at", "temp_c")
+    list_filter = ("location",)
+    date_hierarchy = "taken_at"
+    list_select_related = ("location",)
+
+
+# --- gear models and positions -------------------------------------------------------
+
+class PositionInline(admin.TabularInline):
+    model = Position
+    fields = ("designator", "role", *RATING_COLUMNS[:5], "ripple_current_a", "operating_voltage_v", "mount")
+    extra = 0
+    show_change_link = True
+    ordering = ("designator",)
+
+
+@admin.register(GearModel)
+class GearModelAdmin(admin.ModelAdmin):
+    list_display = ("maker", "model_name", "category", "year_from", "year_to", "internal_rise_k", "hazard_list",
+                    "position_count", "unit_count")
+    list_filter = ("category", "hazard_mains", "hazard_tube_hv", "hazard_smps", "maker")
+    search_fields = ("maker", "model_name")
+    fieldsets = (
+        (None, {"fields": ("maker", "model_name", "category", ("year_from", "year_to"))}),
+        ("Use and heat", {"fields": ("internal_rise_k", "powered_hours_per_day")}),
+        ("Hazards", {"fields": ("mains_voltage_v", "hazard_mains", "hazard_tube_hv", "hazard_smps")}),
+        (None, {"fields": ("notes",)}),
+    )
+    inlines = [PositionInline]
+
+    def get_queryset(self, request):
+        from django.db.models import Count
+
+        return super().get_queryset(request).annotate(
+            _positions=Count("positions", distinct=True), _units=Count("units", distinct=True)
+        )
+
+    @admin.display(description="positions", ordering="_positions")
+    def position_count(self, obj):
+        return obj._positions
+
+    @admin.display(description="units", ordering="_units")
+    def unit_count(self, obj):
+        return obj._units
+
+    @admin.display(description="hazards")
+    def hazard_list(self, obj):
+        words = [w for flag, w in ((obj.hazard_mains, "mains"), (obj.hazard_tube_hv, "tube HV"),
+                                   (obj.hazard_smps, "switch-mode")) if flag]
+        return ", ".join(words) or "none"
+
+
+@admin.register(Position)
+class PositionAdmin(admin.ModelAdmin):
+    list_display = ("gear_model", "designator", "role", "capacitance_uf", "rated_voltage_v", "rated_temp_c",
+                    "rated_life_h")
+    list_filter = ("role", "mount", "gear_model")
+    search_fields = ("designator", "gear_model__maker", "gear_model__model_name")
+    list_select_related = ("gear_model",)
+    fieldsets = (
+        (None, {"fields": ("gear_model", "designator", "role")}),
+        ("Original part", {"fields": RATING_COLUMNS}),
+        ("Operating point", {"fields": ("ripple_current_a", "ripple_freq_hz", "operating_voltage_v")}),
+        ("Charge pump (pump roles)", {"classes": ["collapse"], "fields": (
+            "pump_partner", "pump_input_v", "pump_load_a", "pump_freq_hz", "pump_switch_ohm", "pump_min_rail_v")}),
+        ("Signal coupling", {"classes": ["collapse"], "fields": ("coupling_load_ohm", "coupling_max_corner_hz")}),
+        ("Supply reservoir", {"classes": ["collapse"], "fields": (
+            "reservoir_load_a", "reservoir_ripple_freq_hz", "reservoir_ripple_limit_v")}),
+    )
+
+
+# --- units -----------------------------------------------------------------------
+
+class UnitCapacitorInline(admin.TabularInline):
+    """The parts fitted now; read-only (a recap is recorded as a service)."""
+
+    model = UnitCapacitor
+    fields = ("designator", "capacitance", *RATING_COLUMNS[1:5], "installed_on", "is_original")
+    readonly_fields = fields
+    extra = 0
+    can_delete = False
+    ordering = ("position__designator",)
+
+    def get_queryset(self, request):
+        return super().get_queryset(request).select_related("position")
+
+    @admin.display(description="designator")
+    def designator(self, obj):
+        return obj.position.designator
+
+    @admin.display(description="capacitance")
+    def capacitance(self, obj):
+        return format_capacitance(obj.capacitance_uf)
+
+    def has_add_permission(self, request, obj=None):
+        return False
+
+    def has_change_permission(self, request, obj=None):
+        return False
+
+
+@admin.register(Unit)
+class UnitAdmin(admin.ModelAdmin):
+    list_display = ("asset_tag", "gear_model", "serial", "status", "home_location", "year_made", "hour_meter_h")
+    list_filter = ("status", "gear_model", "home_location")
+    search_fields = ("asset_tag", "serial")
+    list_select_related = ("gear_model", "home_location")
+    fieldsets = (
+        (None, {"fields": ("asset_tag", "serial", "gear_model", "year_made", "joined_on", "home_location",
+                           "status", "hour_meter_h")}),
+        ("Use before it joined the fleet", {"fields": ("prior_powered_h_per_year", "prior_ambient_c",
+                                                        "prior_storage_c")}),
+        (None, {"fields": ("notes",)}),
+    )
+    inlines = [UnitCapacitorInline]
+
+    def get_readonly_fields(self, request, obj=None):
+        # The model decides the capacitor population; changing it afterwards
+        # would leave the fitted parts of the old model behind.
+        return ("gear_model",) if obj is not None else ()
+
+    def get_inline_instances(self, request, obj=None):
+        # A new unit gets its capacitors from its model when it is saved.
+        return super().get_inline_instances(request, obj) if obj is not None else []
+
+    def save_model(self, request, obj, form, change):
+        super().save_model(request, obj, form, change)
+        if not change:
+            from scheduling.thermal import thermal_start
+
+            unit_populate(units=[obj])
+            thermal_start(unit_ids=[obj.pk])
+
+
+# --- hires -----------------------------------------------------------------------
+
+@admin.register(Rental)
+class RentalAdmin(admin.ModelAdmin):
+    """Hires are written by the rental desk; here they are for looking up."""
+
+    list_display = ("unit", "job_ref", "out_at", "in_at", "powered_hours", "hours_source", "venue_ambient_c",
+                    "has_faults")
+    list_filter = ("hours_source", ("in_at", admin.EmptyFieldListFilter), "unit__gear_model",
+                   "unit__home_location")
+    search_fields = ("unit__asset_tag", "job_ref")
+    date_hierarchy = "out_at"
+    list_select_related = ("unit",)
+
+    @admin.display(boolean=True, description="faults")
+    def has_faults(self, obj):
+        return bool(obj.reported_faults)
+
+    def has_add_permission(self, request):
+        return False
+
+    def has_change_permission(self, request, obj=None):
+        return False
+
+    def has_delete_permission(self, request, obj=None):
+        return False
+
+
+# --- service records ---------------------------------------------------------------
+
+class ReplacedPartInline(admin.TabularInline):
+    """Parts put in during the service; written by the recap service, shown read-only."""
+
+    model = ReplacedPart
+    fields = ("position", *RATING_COLUMNS)
+    readonly_fields = fields
+    extra = 0
+    can_delete = False
+
+    def has_add_permission(self, request, obj=None):
+        return False
+
+    def has_change_permission(self, request, obj=None):
+        return False
+
+
+class MeasurementInline(admin.TabularInline):
+    model = Measurement
+    fields = ("quantity", "position", "rail_name", "value", "before_work")
+    extra = 0
+
+    def get_formset(self, request, obj=None, **kwargs):
+        request._recap_service_record = obj
+        return super().get_formset(request, obj, **kwargs)
+
+    def formfield_for_foreignkey(self, db_field, request, **kwargs):
+        if db_field.name == "position":
+            qs = Position.objects.select_related("gear_model")
+            record = getattr(request, "_recap_service_record", None)
+            if record is not None:
+                qs = qs.filter(gear_model_id=record.unit.gear_model_id)
+            kwargs["queryset"] = qs
+        return super().formfield_for_foreignkey(db_field, request, **kwargs)
+
+
+@admin.register(ServiceRecord)
+class ServiceRecordAdmin(admin.ModelAdmin):
+    list_display = ("unit", "kind", "performed_on", "who", "signed_off_by", "signed_off_at")
+    list_filter = ("kind", "performed_on", ("signed_off_by", admin.EmptyFieldListFilter))
+    search_fields = ("unit__asset_tag", "technician_name", "notes")
+    date_hierarchy = "performed_on"
+    list_select_related = ("unit", "technician", "signed_off_by")
+    raw_id_fields = ("unit",)
+    inlines = [ReplacedPartInline, MeasurementInline]
+
+    @admin.display(description="technician")
+    def who(self, obj):
+        return obj.technician or obj.technician_name or "-"
+
+
+@admin.register(MaintenancePolicy)
+class MaintenancePolicyAdmin(admin.ModelAdmin):
+    list_display = ("name", "active", "risk_limit", "horizon_days", "damage_limit", "calendar_age_years",
+                    "storage_reform_months", "watch_days")
+    list_filter = ("active",)
+    search_fields = ("name",)

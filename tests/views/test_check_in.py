@@ -1,0 +1,157 @@
+"""The rental desk's check-in form and its verdict: may the unit go out again?"""
+
+import datetime as dt
+
+import pytest
+from django.urls import reverse
+from django.utils import timezone
+
+from fleet.models import Rental, Unit
+from fleet.services import rental_check_out
+from fleet.views import return_verdict
+from scheduling.models import UnitForecast
+
+URL = reverse("check_in")
+
+
+@pytest.fixture
+def out_unit(fleet):
+    """NMB-0001 out on hire since two days ago."""
+    rental_check_out(unit_id=fleet.unit.pk, job_ref="JOB-55", out_at=timezone.now() - dt.timedelta(days=2),
+                     expected_ambient_c=26)
+    return fleet.unit
+
+
+def post(client, **data):
+    form = {"asset_tag": "NMB-0001", "venue_ambient_c": "29", "powered_hours": "14", "meter_reading_h": "",
+            "reported_faults": ""}
+    form.update(data)
+    return client.post(URL, form)
+
+
+def set_forecast(unit, status, due_date=None, reasons=()):
+    UnitForecast.objects.update_or_create(unit=unit, defaults=dict(
+        computed_at=timezone.now(), status=status, due_date=due_date, risk=0.2, horizon_days=90,
+        max_damage_ratio=0.9, reasons=list(reasons), positions=b""))
+
+
+def test_check_out_then_check_in_through_the_forms_writes_the_hire_and_shows_the_verdict(client, users, fleet):
+    client.force_login(users.desk)
+    out_at = (timezone.localtime() - dt.timedelta(days=1)).strftime("%Y-%m-%dT%H:%M")
+    response = client.post(reverse("check_out"), {"asset_tag": "nmb-0001", "job_ref": "JOB-9", "expected_ambient_c": "24",
+                                                  "out_at": out_at})
+    assert response.status_code == 302
+    response = post(client, asset_tag=" nmb-0001", powered_hours="6.5")
+    assert response.status_code == 302
+    rental = Rental.objects.get()
+    assert rental.in_at is not None
+    assert rental.powered_hours == 6.5
+    assert rental.venue_ambient_c == 29
+    assert rental.hours_source == Rental.HoursSource.ESTIMATE
+    assert rental.checked_in_by == users.desk
+    page = client.get(response["Location"])
+    verdict = page.context["verdict"]
+    # The check-in refreshed the forecast (or there is none yet); the panel says what it says.
+    expected = return_verdict(rental, UnitForecast.objects.filter(unit=fleet.unit).first())
+    assert verdict["headline"] == expected["headline"]
+    assert verdict["headline"] in page.content.decode()
+    assert "NMB-0001: " in verdict["headline"]
+
+
+def test_reported_faults_hold_the_unit_for_the_bench(client, users, out_unit):
+    client.force_login(users.desk)
+    response = post(client, reported_faults="Crackle on the left channel")
+    page = client.get(response["Location"])
+    text = page.content.decode()
+    assert "NMB-0001: hold for the bench" in text
+    assert "Crackle on the left channel" in text
+    out_unit.refresh_from_db()
+    assert out_unit.status == Unit.Status.HOLD
+
+
+def test_an_hour_meter_reading_counts_the_hours_since_the_last_reading(client, users, fleet):
+    Unit.objects.filter(pk=fleet.unit.pk).update(hour_meter_h=1200)
+    rental_check_out(unit_id=fleet.unit.pk, job_ref="JOB-56", out_at=timezone.now() - dt.timedelta(days=2))
+    client.force_login(users.desk)
+    assert post(client, powered_hours="", meter_reading_h="1210.5").status_code == 302
+    rental = Rental.objects.get()
+    assert rental.powered_hours == pytest.approx(10.5)
+    assert rental.hours_source == Rental.HoursSource.METER
+
+
+@pytest.mark.parametrize("status, due, reasons, go, headline", [
+    ("ok", None, [], True, "NMB-0001: may go out again"),
+    ("watch", dt.date(2031, 3, 9), ["C1 ageing"], True, "NMB-0001: may go out again; recap coming up by 09 Mar 2031"),
+    ("due", dt.date(2030, 1, 1), ["C1 has used its endurance"], False, "NMB-0001: hold for recap"),
+    ("overdue", None, ["C7 past its calendar age"], False, "NMB-0001: hold for recap"),
+])
+def test_the_verdict_follows_the_forecast_after_check_in(client, users, out_unit, status, due, reasons, go,
+                                                         headline):
+    client.force_login(users.desk)
+    response = post(client)
+    assert response.status_code == 302
+    set_forecast(out_unit, status, due, reasons)  # as the life engine would leave it
+    page = client.get(response["Location"])
+    verdict = page.context["verdict"]
+    assert verdict["go"] is go
+    assert verdict["headline"] == headline
+    text = page.content.decode()
+    assert headline in text
+    for reason in reasons:
+        assert reason in text
+
+
+def test_without_a_forecast_the_unit_may_go_out(users):
+    rental = Rental(unit=Unit(asset_tag="NMB-0001"), job_ref="J", reported_faults="")
+    assert return_verdict(rental, None) == {
+        "go": True, "headline": "NMB-0001: may go out again (no forecast yet)", "details": []}
+
+
+@pytest.mark.parametrize("data, field, message", [
+    ({"asset_tag": "NOPE-1"}, "asset_tag", "No unit has the asset tag NOPE-1"),
+    ({"powered_hours": "six"}, "powered_hours", "Enter hours as a number"),
+    ({"powered_hours": "-3"}, "powered_hours", "Hours cannot be negative."),
+    ({"powered_hours": "", "meter_reading_h": "-1"}, "meter_reading_h", "Hours cannot be negative."),
+    ({"venue_ambient_c": "86"}, "venue_ambient_c", "hotter than 85"),
+    ({"venue_ambient_c": "-45"}, "venue_ambient_c", "colder than -40"),
+    ({"venue_ambient_c": ""}, "venue_ambient_c", "This field is required."),
+    ({"venue_ambient_c": "nan"}, "venue_ambient_c", "Enter the temperature as a number"),
+    ({"powered_hours": ""}, "__all__", "Give the hours powered or the hour-meter reading."),
+])
+def test_bad_input_shows_an_error_and_writes_nothing(client, users, out_unit, data, field, message):
+    client.force_login(users.desk)
+    response = post(client, **data)
+    assert response.status_code == 200
+    assert message in " ".join(response.context["form"].errors[field])
+    assert "Nothing was saved." in response.content.decode()
+    rental = Rental.objects.get()
+    assert rental.in_at is None and rental.powered_hours is None
+    out_unit.refresh_from_db()
+    assert out_unit.status == Unit.Status.OUT
+
+
+@pytest.mark.parametrize("data, message", [
+    ({"powered_hours": "60"}, "more than the"),  # longer than the two days out
+    ({"powered_hours": "", "meter_reading_h": "100"}, "has no earlier meter reading"),
+])
+def test_the_services_refusals_show_as_form_errors(client, users, out_unit, data, message):
+    client.force_login(users.desk)
+    response = post(client, **data)
+    assert response.status_code == 200
+    assert message in " ".join(response.context["form"].non_field_errors())
+    assert Rental.objects.get().in_at is None
+
+
+def test_a_unit_that_is_not_out_is_refused(client, users, fleet):
+    client.force_login(users.desk)
+    response = post(client)
+    assert "NMB-0001 is not out on hire." in response.context["form"].non_field_errors()
+    assert not Rental.objects.exists()
+
+
+def test_a_tag_from_the_start_page_fills_in_the_expected_ambient(client, users, out_unit):
+    client.force_login(users.desk)
+    form = client.get(URL, {"tag": "nmb-0001"}).context["form"]
+    assert form.initial == {"asset_tag": "NMB-0001", "venue_ambient_c": "26"}
+    assert form.fields["powered_hours"].widget.attrs.get("autofocus") or \
+        form.fields["venue_ambient_c"].widget.attrs.get("autofocus")

@@ -1,0 +1,117 @@
+"""The rental desk's check-out form."""
+
+import datetime as dt
+
+import pytest
+from django.urls import reverse
+from django.utils import timezone
+
+from fleet.models import Rental, Unit
+from fleet.services import rental_check_out
+from scheduling.models import UnitForecast
+
+URL = reverse("check_out")
+
+
+def post(client, **data):
+    form = {"asset_tag": "NMB-0001", "job_ref": "JOB-2024-118", "expected_ambient_c": "27"}
+    form.update(data)
+    return client.post(URL, form)
+
+
+def test_the_form_puts_the_cursor_in_the_tag_box(client, users, fleet):
+    client.force_login(users.desk)
+    text = client.get(URL).content.decode()
+    assert 'name="asset_tag"' in text
+    tag_input = text[text.index('name="asset_tag"') - 200:text.index('name="asset_tag"') + 200]
+    assert "autofocus" in tag_input
+    assert 'type="submit"' in text
+
+
+def test_checking_out_writes_the_hire_and_marks_the_unit_out(client, users, fleet):
+    client.force_login(users.desk)
+    response = post(client, asset_tag="  nmb-0001 ")
+    assert response.status_code == 302
+    rental = Rental.objects.get()
+    assert rental.unit == fleet.unit
+    assert rental.job_ref == "JOB-2024-118"
+    assert rental.expected_ambient_c == 27
+    assert rental.checked_out_by == users.desk
+    assert abs((timezone.now() - rental.out_at).total_seconds()) < 60
+    fleet.unit.refresh_from_db()
+    assert fleet.unit.status == Unit.Status.OUT
+    page = client.get(response["Location"]).content.decode()
+    assert "NMB-0001 checked out on job JOB-2024-118" in page
+
+
+def test_a_given_check_out_time_is_used(client, users, fleet):
+    client.force_login(users.manager)
+    post(client, out_at="2024-05-17T09:30")
+    rental = Rental.objects.get()
+    assert timezone.localtime(rental.out_at).strftime("%Y-%m-%d %H:%M") == "2024-05-17 09:30"
+
+
+@pytest.mark.parametrize("data, field, message", [
+    ({"asset_tag": "ZZZ-999"}, "asset_tag", "No unit has the asset tag ZZZ-999"),
+    ({"asset_tag": "   "}, "asset_tag", "Scan or type the unit's asset tag."),
+    ({"job_ref": ""}, "job_ref", "Give the job reference"),
+    ({"expected_ambient_c": "warm"}, "expected_ambient_c", "Enter the temperature as a number"),
+    ({"expected_ambient_c": "90"}, "expected_ambient_c", "hotter than 85"),
+    ({"expected_ambient_c": "-41"}, "expected_ambient_c", "colder than -40"),
+    ({"out_at": "yesterday"}, "out_at", "Enter a date and time"),
+    ({"out_at": "2099-01-01T10:00"}, "out_at", "in the future"),
+])
+def test_bad_input_shows_an_error_and_writes_nothing(client, users, fleet, data, field, message):
+    client.force_login(users.desk)
+    response = post(client, **data)
+    assert response.status_code == 200
+    assert message in " ".join(response.context["form"].errors[field])
+    assert "Nothing was saved." in response.content.decode()
+    assert not Rental.objects.exists()
+    fleet.unit.refresh_from_db()
+    assert fleet.unit.status == Unit.Status.AVAILABLE
+
+
+def test_the_cursor_goes_to_the_first_field_with_an_error(client, users, fleet):
+    client.force_login(users.desk)
+    response = post(client, job_ref="")
+    assert response.context["form"].fields["job_ref"].widget.attrs.get("autofocus")
+    assert not response.context["form"].fields["asset_tag"].widget.attrs.get("autofocus")
+
+
+def test_a_unit_already_out_is_refused_with_the_services_message(client, users, fleet):
+    rental_check_out(unit_id=fleet.unit.pk, job_ref="JOB-1", out_at=timezone.now() - dt.timedelta(hours=1))
+    client.force_login(users.desk)
+    response = post(client)
+    assert response.status_code == 200
+    assert "NMB-0001 is already out; check it in first." in response.context["form"].non_field_errors()
+    assert Rental.objects.count() == 1
+
+
+def test_a_held_unit_is_refused(client, users, fleet):
+    Unit.objects.filter(pk=fleet.unit.pk).update(status=Unit.Status.HOLD)
+    client.force_login(users.desk)
+    response = post(client)
+    assert "NMB-0001 is held, not available for hire." in response.context["form"].non_field_errors()
+    assert not Rental.objects.exists()
+
+
+def test_a_unit_due_for_recap_needs_the_send_anyway_box(client, users, fleet):
+    UnitForecast.objects.create(unit=fleet.unit, computed_at=timezone.now(), status="overdue", risk=0.5,
+                                horizon_days=90, max_damage_ratio=1.4, reasons=["C1 worn"], positions=b"")
+    client.force_login(users.desk)
+    response = post(client)
+    assert response.status_code == 200
+    assert "overdue for a recap" in " ".join(response.context["form"].non_field_errors())
+    assert 'name="send_anyway"' in response.content.decode()
+    assert not Rental.objects.exists()
+    assert post(client, send_anyway="on").status_code == 302
+    assert Rental.objects.count() == 1
+
+
+def test_a_tag_from_the_start_page_is_filled_in_and_the_cursor_moves_on(client, users, fleet):
+    client.force_login(users.desk)
+    response = client.get(URL, {"tag": "nmb-0001"})
+    form = response.context["form"]
+    assert form.initial["asset_tag"] == "NMB-0001"
+    assert form.fields["job_ref"].widget.attrs.get("autofocus")
