@@ -114,6 +114,8 @@ try:
 except ValueError as exc:
     raise ImproperlyConfigured(f"DATABASE_URL is not a database address: {exc}") from None
 if DATABASES["default"]["ENGINE"] == "django.db.backends.sqlite3":
+    # SQLite cannot create its file in a folder that does not exist yet.
+    VAR_DIR.mkdir(parents=True, exist_ok=True)
     DATABASES["default"].setdefault("OPTIONS", {})
     # WAL lets the web process read while a background job writes.
     DATABASES["default"]["OPTIONS"].setdefault(

@@ -524,10 +524,9 @@ def _position_reason_text(fa, i, reach_day, today_day, threshold_is_zero=False):
         what = "reaches end-of-life drift (ESR doubled, capacitance down 20%)"
     if reach_day < today_day and _DAMAGE_NOW:
         damage, threshold = _DAMAGE_NOW[0][i], _DAMAGE_NOW[1][i]
-        what = what.replace("would rise", "has risen").replace("would exceed", "exceeds").replace(
-            "would sag", "sags").replace("reaches", "is past")
-        return (f"{des} {ROLE_WORDS[role]}: {what} already (damage {damage:.1f} against a threshold of "
-                f"{threshold:.2f})")
+        what = what.replace("would rise", "has already risen").replace("would exceed", "already exceeds").replace(
+            "would sag", "already sags").replace("reaches", "past")
+        return f"{des} {ROLE_WORDS[role]}: {what} (damage {damage:.1f} against a threshold of {threshold:.2f})"
     return f"{des} {ROLE_WORDS[role]}: {what} {when}"
 
 
