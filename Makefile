@@ -18,7 +18,7 @@ install: $(STAMP)
 ## print the demo logins, then serve http://127.0.0.1:8000 with a background
 ## worker and its schedule (SQLite, no Redis needed).
 run: $(STAMP)
-	mkdir -p var/mail var/celery/queue var/celery/processed
+	mkdir -p var/mail var/celery/queue var/celery/processed var/celery/control
 	DEBUG=true $(BIN)/python manage.py migrate --noinput
 	DEBUG=true $(BIN)/python manage.py demo_setup
 	DEBUG=true bash -c 'trap "kill 0" EXIT; \

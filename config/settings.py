@@ -191,6 +191,7 @@ else:
         "data_folder_in": str(CELERY_FOLDER / "queue"),
         "data_folder_out": str(CELERY_FOLDER / "queue"),
         "processed_folder": str(CELERY_FOLDER / "processed"),
+        "control_folder": str(CELERY_FOLDER / "control"),
         "store_processed": False,
         "polling_interval": 0.2,
     }
