@@ -161,8 +161,12 @@ def rental_check_in(*, unit_id, in_at=None, venue_ambient_c, powered_hours=None,
     # The desk must know at once whether the unit may go out again.
     from scheduling.services import forecast_refresh
 
-    if unit.status != Unit.Status.RETIRED:
-        forecast_refresh(unit_ids=[unit.pk], today=timezone.localdate(in_at))
+    run = forecast_refresh(unit_ids=[unit.pk], today=timezone.localdate(in_at))
+    # A unit the forecast calls due or overdue is held for a recap, like a
+    # unit that came back with a fault: the desk must not hire it out again.
+    if unit.status == Unit.Status.AVAILABLE and run.fleet.n_units and run.result.status[0] in ("due", "overdue"):
+        unit.status = Unit.Status.HOLD
+        unit.save(update_fields=["status"])
     return rental
 
 

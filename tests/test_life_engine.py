@@ -69,6 +69,9 @@ def effects_model(db):
 
 
 def hire(unit, start, days, powered_hours, ambient_c):
+    # Tests hire one unit many times; a unit the check-in held for recap is
+    # cleared first, as the bench would after looking at it.
+    Unit.objects.filter(pk=unit.pk, status=Unit.Status.HOLD).update(status=Unit.Status.AVAILABLE)
     services.rental_check_out(unit_id=unit.pk, job_ref="T", out_at=start)
     services.rental_check_in(unit_id=unit.pk, in_at=start + dt.timedelta(days=days), venue_ambient_c=ambient_c,
                              powered_hours=powered_hours)
@@ -323,3 +326,20 @@ def test_engine_options_reject_a_bad_law():
         EngineOptions(law="guess")
     with pytest.raises(ValueError, match="activation_energy_ev"):
         EngineOptions(law="arrhenius", activation_energy_ev=0)
+
+
+def test_check_in_holds_a_unit_the_forecast_calls_overdue(effects_model, store):
+    unit = make_unit(effects_model, store, year=1980)
+    MaintenancePolicy.objects.create(name="strict", active=True, calendar_age_years=40)
+    hire(unit, aware(2026, 11, 20, 9), 2, 10, 25)
+    unit.refresh_from_db()
+    assert UnitForecast.objects.get(unit=unit).status == "overdue"
+    assert unit.status == Unit.Status.HOLD
+
+
+def test_check_in_leaves_a_healthy_unit_available(effects_model, store):
+    unit = make_unit(effects_model, store, year=2024, joined=dt.date(2025, 1, 1))
+    hire(unit, aware(2026, 11, 20, 9), 2, 10, 25)
+    unit.refresh_from_db()
+    assert UnitForecast.objects.get(unit=unit).status == "ok"
+    assert unit.status == Unit.Status.AVAILABLE
