@@ -207,6 +207,23 @@ def recent_use(unit_ids, today):
                            (r["weighted"] / r["powered"]) if r["powered"] else np.nan) for r in rows}
 
 
+def _raw(sql, params):
+    with connection.cursor() as cursor:
+        cursor.execute(sql, params)
+        return cursor.fetchall()
+
+
+def _days_from_text(values):
+    """Dates or timestamps written as text (as both databases cast them) to
+    float days since 1970-01-01 (UTC); None gives NaN."""
+    out = np.full(len(values), np.nan)
+    present = [i for i, v in enumerate(values) if v is not None]
+    if present:
+        stamps = np.array([values[i][:19].replace(" ", "T") for i in present], dtype="datetime64[s]")
+        out[present] = stamps.astype(np.int64) / 86400.0
+    return out
+
+
 def _index_of(sorted_ids, ids):
     """Position of each of ``ids`` in the ascending ``sorted_ids``; -1 where absent."""
     if sorted_ids.size == 0:
@@ -217,42 +234,54 @@ def _index_of(sorted_ids, ids):
 
 def load_fleet(*, unit_ids=None, today, min_history_days=180):
     """Everything the engine needs, as arrays (see FleetArrays)."""
-    units_qs = Unit.objects.exclude(status=Unit.Status.RETIRED).order_by("pk")
+    qn = connection.ops.quote_name
+    ids_sql, params = "", []
     if unit_ids is not None:
-        units_qs = units_qs.filter(pk__in=unit_ids)
-    units = list(units_qs.values_list("pk", "asset_tag", "gear_model_id", "home_location_id", "year_made",
-                                      "joined_on"))
+        ids_sql = f" AND {qn('id')} IN ({', '.join(['%s'] * len(unit_ids)) or 'NULL'})"
+        params = list(unit_ids)
+    units = _raw(
+        f"SELECT {qn('id')}, {qn('asset_tag')}, {qn('gear_model_id')}, {qn('home_location_id')}, "
+        f"{qn('year_made')}, CAST({qn('joined_on')} AS TEXT) FROM {qn(Unit._meta.db_table)} "
+        f"WHERE {qn('status')} <> %s{ids_sql} ORDER BY {qn('id')}",
+        [Unit.Status.RETIRED, *params],
+    )
     ids = [u[0] for u in units]
     filter_ids = None if unit_ids is None else ids
     n = len(units)
-    uidx = {uid: k for k, uid in enumerate(ids)}
+    unit_ids_arr = np.array(ids, dtype=np.int64)
 
     models = list(GearModel.objects.values_list("pk", "internal_rise_k", "powered_hours_per_day"))
     midx = {m[0]: k for k, m in enumerate(models)}
 
+    joined_day = _days_from_text([u[5] for u in units])
     hp = np.zeros((n, H.N_BINS))
     hu = np.zeros((n, H.N_BINS))
-    accounted = np.array([_day(joined_at(u[5])) for u in units]) if n else np.zeros(0)
+    accounted = joined_day.copy()  # a unit without a history counts from joining
     last_powered = np.full(n, np.nan)
-    th = ThermalHistory.objects.all()
+    th_sql = (f"SELECT {qn('unit_id')}, {qn('powered')}, {qn('unpowered')}, CAST({qn('accounted_until')} AS TEXT), "
+              f"CAST({qn('last_powered_at')} AS TEXT) FROM {qn(ThermalHistory._meta.db_table)}")
+    th_params = []
     if filter_ids is not None:
-        th = th.filter(unit_id__in=filter_ids)
-    for unit_id, p, q, acc, lp in th.values_list("unit_id", "powered", "unpowered", "accounted_until",
-                                                 "last_powered_at").iterator(chunk_size=2000):
-        k = uidx.get(unit_id)
-        if k is None:
-            continue
-        hp[k] = np.frombuffer(bytes(p), dtype=H.DTYPE)
-        hu[k] = np.frombuffer(bytes(q), dtype=H.DTYPE)
-        accounted[k] = _day(acc)
-        last_powered[k] = _day(lp)
+        th_sql += f" WHERE {qn('unit_id')} IN ({', '.join(['%s'] * len(filter_ids)) or 'NULL'})"
+        th_params = list(filter_ids)
+    rows = _raw(th_sql, th_params)
+    if rows:
+        k = _index_of(unit_ids_arr, np.array([r[0] for r in rows], dtype=np.int64))
+        ok = k >= 0
+        rows = [r for r, keep in zip(rows, ok) if keep]
+        k = k[ok]
+        if rows:
+            hp[k] = H.stack_from_bytes([r[1] for r in rows])
+            hu[k] = H.stack_from_bytes([r[2] for r in rows])
+            accounted[k] = _days_from_text([r[3] for r in rows])
+            last_powered[k] = _days_from_text([r[4] for r in rows])
 
     temps = location_monthly_temps({u[3] for u in units})
     monthly = np.array([temps[u[3]] for u in units]).reshape(n, 12)
 
     use = recent_use(filter_ids, today)
     today_day = _day(today)
-    joined_day = np.array([_day(u[5]) for u in units]) if n else np.zeros(0)
+    uidx = {uid: k for k, uid in enumerate(ids)}
     use_p = np.full(n, np.nan)
     use_o = np.full(n, np.nan)
     use_a = np.full(n, np.nan)
@@ -266,7 +295,6 @@ def load_fleet(*, unit_ids=None, today, min_history_days=180):
     use_o[settled & np.isnan(use_o)] = 0.0
 
     caps = read_capacitors(filter_ids)
-    unit_ids_arr = np.array(ids, dtype=np.int64)  # ascending (ordered by pk)
     cap_unit_index = _index_of(unit_ids_arr, caps["unit_id"])
     keep = cap_unit_index >= 0  # capacitors of retired units are left out
     caps = {k: v[keep] for k, v in caps.items()}
@@ -297,10 +325,10 @@ def load_fleet(*, unit_ids=None, today, min_history_days=180):
     esr0[missing] = caps["tan_delta"][missing] / (2 * np.pi * 120.0 * caps["capacitance_uf"][missing] * 1e-6)
 
     return FleetArrays(
-        unit_id=np.array(ids, dtype=np.int64),
+        unit_id=unit_ids_arr,
         asset_tag=[u[1] for u in units],
         unit_model=np.array([midx[u[2]] for u in units], dtype=np.int64),
-        manufactured_day=np.array([_day(dt.date(u[4], 7, 1)) for u in units]) if n else np.zeros(0),
+        manufactured_day=_days_from_text([f"{u[4]:04d}-07-01" for u in units]),
         joined_day=joined_day,
         hist_powered=hp, hist_unpowered=hu, accounted_day=accounted, last_powered_day=last_powered,
         monthly_store_c=monthly,
