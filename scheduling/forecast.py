@@ -484,32 +484,29 @@ def _when(day, today_day):
     return f"since about {month}" if day < today_day else f"by {month}"
 
 
-def _position_reason(fa, i, reach_day, today_day, threshold_is_zero=False):
-    """Words for capacitor row i; cached per (position, month, past?) since
-    units of one gear model share their positions' wording."""
-    day = int(np.floor(reach_day))
+def _position_reason(fa, i, reach_day, today_day, damage, threshold):
+    """Words for capacitor row i.  The wording is cached per (position, month,
+    crossed?) as a template, since the units of one gear model share their
+    positions' words; only the damage figures differ between units."""
     past = reach_day < today_day
-    key = (id(fa), int(fa.position_index[i]), _month(day), past, bool(threshold_is_zero),
-           round(float(_DAMAGE_NOW[0][i]), 1) if past and _DAMAGE_NOW else None)
-    text = _REASON_CACHE.get(key)
-    if text is None:
+    pos = int(fa.position_index[i])
+    key = (id(fa), pos, _month(int(np.floor(reach_day))), past, threshold <= 0)
+    template = _REASON_CACHE.get(key)
+    if template is None:
         if len(_REASON_CACHE) > 100_000:
             _REASON_CACHE.clear()
-        text = _REASON_CACHE[key] = _position_reason_text(fa, i, reach_day, today_day, threshold_is_zero)
-    return text
+        template = _REASON_CACHE[key] = _position_reason_template(fa, pos, reach_day, today_day, threshold <= 0)
+    return template.format(damage=damage, threshold=threshold) if past else template
 
 
 _REASON_CACHE = {}
-_DAMAGE_NOW = []  # (damage, threshold) of the forecast being worded
 
 
-def _position_reason_text(fa, i, reach_day, today_day, threshold_is_zero=False):
+def _position_reason_template(fa, pos, reach_day, today_day, threshold_is_zero):
     from .loader import ROLE_NAMES
 
-    pos = fa.position_index[i]
-    des = fa.pos_designator[pos]
+    des = fa.pos_designator[pos].replace("{", "{{").replace("}", "}}")
     role = ROLE_NAMES[int(fa.pos_role[pos])]
-    when = _when(reach_day, today_day)
     c = fa.pos_circuit
     if threshold_is_zero:
         return (f"{des} {ROLE_WORDS[role]}: the circuit requirement is not met even by a new part; "
@@ -522,18 +519,16 @@ def _position_reason_text(fa, i, reach_day, today_day, threshold_is_zero=False):
         what = f"bass roll-off would rise above {c['coupling_max_corner_hz'][pos]:g} Hz"
     else:
         what = "reaches end-of-life drift (ESR doubled, capacitance down 20%)"
-    if reach_day < today_day and _DAMAGE_NOW:
-        damage, threshold = _DAMAGE_NOW[0][i], _DAMAGE_NOW[1][i]
+    if reach_day < today_day:
         what = what.replace("would rise", "has already risen").replace("would exceed", "already exceeds").replace(
             "would sag", "already sags").replace("reaches", "past")
-        return f"{des} {ROLE_WORDS[role]}: {what} (damage {damage:.1f} against a threshold of {threshold:.2f})"
-    return f"{des} {ROLE_WORDS[role]}: {what} {when}"
+        return f"{des} {ROLE_WORDS[role]}: {what} (damage {{damage:.1f}} against a threshold of {{threshold:.2f}})"
+    return f"{des} {ROLE_WORDS[role]}: {what} {_when(reach_day, today_day)}"
 
 
 def _reasons(fa, policy, today_day, damage, threshold, reaches, risk, risk_day, age_day, has_original,
              storage_reform, unpowered_months):
     nu = fa.n_units
-    _DAMAGE_NOW[:] = [damage, threshold]
     key = np.where(np.isnan(reaches), np.inf, reaches)
     first = _first_per_unit(fa.unit_index, key, nu, k=2) if fa.n_caps else np.full((nu, 2), -1)
     horizon_end = today_day + max(policy.watch_days, policy.horizon_days)
@@ -550,7 +545,7 @@ def _reasons(fa, policy, today_day, damage, threshold, reaches, risk, risk_day, 
             items.append((risk_day[u], text))
         for i in first[u]:
             if i >= 0 and np.isfinite(key[i]) and key[i] <= horizon_end:
-                items.append((key[i], _position_reason(fa, i, key[i], today_day, threshold[i] <= 0)))
+                items.append((key[i], _position_reason(fa, i, key[i], today_day, damage[i], threshold[i])))
         if has_original[u] and age_day[u] <= horizon_end:
             items.append((age_day[u], f"Original capacitors pass {policy.calendar_age_years:g} years of age "
                                       f"{_when(age_day[u], today_day)}"))

@@ -110,9 +110,16 @@ def _f(x):
 CAPACITOR_ROW = np.dtype([
     ("id", "<i8"), ("unit_id", "<i8"), ("position_id", "<i8"), ("capacitance_uf", "<f8"),
     ("rated_voltage_v", "<f8"), ("rated_temp_c", "<f8"), ("rated_life_h", "<f8"), ("esr_ohm", "<f8"),
-    ("tan_delta", "<f8"), ("diameter_mm", "<f8"), ("length_mm", "<f8"), ("installed_on", "<U10"),
+    ("tan_delta", "<f8"), ("diameter_mm", "<f8"), ("length_mm", "<f8"), ("installed_day", "<f8"),
     ("is_original", "?"), ("baseline_id", "<i8"),
 ])
+
+
+def _days_since_epoch_sql(column):
+    """SQL for a date column as days since 1970-01-01."""
+    if connection.vendor == "postgresql":
+        return f"({column} - DATE '1970-01-01')"
+    return f"(julianday({column}) - 2440587.5)"
 
 
 def _capacitor_sql(unit_filter_sql):
@@ -125,8 +132,8 @@ def _capacitor_sql(unit_filter_sql):
             col = f"COALESCE({col}, -1.0)"
         elif name == "baseline_id":
             col = f"COALESCE({col}, -1)"
-        elif name == "installed_on":
-            col = f"CAST({col} AS TEXT)"  # text: no per-row date conversion; numpy parses it
+        elif name == "installed_day":
+            col = _days_since_epoch_sql(qn("installed_on"))  # a number: no per-row date conversion
         select.append(col)
     sql = f"SELECT {', '.join(select)} FROM {qn(t)}"
     if unit_filter_sql:
@@ -169,8 +176,7 @@ def read_capacitors(unit_ids=None, bare=False):
     if bare:
         return count
     arr = np.concatenate(chunks) if chunks else np.zeros(0, dtype=CAPACITOR_ROW)
-    out = {name: arr[name] for name in CAPACITOR_ROW.names if name != "installed_on"}
-    out["installed_day"] = arr["installed_on"].astype("datetime64[D]").astype(np.int64).astype(float)
+    out = {name: np.ascontiguousarray(arr[name]) for name in CAPACITOR_ROW.names}
     for name in ("esr_ohm", "tan_delta"):
         out[name] = np.where(out[name] < 0, np.nan, out[name])
     return out

@@ -104,22 +104,27 @@ def _store(run):
     (``INSERT ... ON CONFLICT (unit_id) DO UPDATE``, SQLite and PostgreSQL)."""
     fa, r = run.fleet, run.result
     now = timezone.now()
+    # All positions in unit order in one record array; each unit's bytes are a slice.
+    order = np.concatenate([run.rows_of(u) for u in range(fa.n_units)]) if fa.n_units else np.zeros(0, np.int64)
+    packed = np.empty(order.size, dtype=POSITION_DTYPE)
+    packed["capacitor_id"] = fa.cap_id[order]
+    for name in ("damage", "esr_ohm", "capacitance_f", "threshold"):
+        packed[name] = getattr(r, name)[order]
+    packed["reaches_day"] = r.reaches_day[order]
+    blob = packed.tobytes()
+    size = POSITION_DTYPE.itemsize
+    ends = np.cumsum([run.rows_of(u).size for u in range(fa.n_units)]) if fa.n_units else []
     rows = []
+    start = 0
     for u in range(fa.n_units):
-        idx = run.rows_of(u)
-        arr = np.empty(idx.size, dtype=POSITION_DTYPE)
-        arr["capacitor_id"] = fa.cap_id[idx]
-        arr["damage"] = r.damage[idx]
-        arr["esr_ohm"] = r.esr_ohm[idx]
-        arr["capacitance_f"] = r.capacitance_f[idx]
-        arr["threshold"] = r.threshold[idx]
-        arr["reaches_day"] = r.reaches_day[idx]
+        end = int(ends[u])
         due = r.due_day[u]
         rows.append((
             int(fa.unit_id[u]), now, r.status[u], None if np.isnan(due) else day_to_date(due),
             float(r.risk[u]), int(run.policy.horizon_days), float(r.max_damage_ratio[u]),
-            bool(r.storage_reform[u]), r.reasons[u], arr.tobytes(),
+            bool(r.storage_reform[u]), r.reasons[u], blob[start * size:end * size],
         ))
+        start = end
     columns = ["unit_id", "computed_at", "status", "due_date", "risk", "horizon_days", "max_damage_ratio",
                "storage_reform", "reasons", "positions"]
     qn = connection.ops.quote_name
