@@ -507,7 +507,7 @@ def _position_reason(fa, i, reach_day, today_day, damage, threshold):
     positions' words; only the damage figures differ between units."""
     past = reach_day < today_day
     pos = int(fa.position_index[i])
-    key = (id(fa), pos, _month(int(np.floor(reach_day))), past, threshold <= 0)
+    key = (id(fa), pos, None if past else _month(int(np.floor(reach_day))), threshold <= 0)
     template = _REASON_CACHE.get(key)
     if template is None:
         if len(_REASON_CACHE) > 100_000:
