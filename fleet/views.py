@@ -134,10 +134,32 @@ def designator_key(designator):
     return (prefix.upper(), int(number) if number else -1, rest)
 
 
-def capacitor_rows(capacitors):
+def _predicted_by_capacitor(forecast):
+    """{capacitor id: predicted figures} from a stored forecast (empty without one)."""
+    if forecast is None:
+        return {}
+    from scheduling.forecast import day_to_date
+    from scheduling.services import stored_positions
+
+    out = {}
+    for rec in stored_positions(forecast):
+        reach = float(rec["reaches_day"])
+        out[int(rec["capacitor_id"])] = {
+            "damage": float(rec["damage"]),
+            "threshold": float(rec["threshold"]),
+            "esr_ohm": float(rec["esr_ohm"]),
+            "capacitance_uf": float(rec["capacitance_f"]) * 1e6,
+            "reaches_on": None if reach != reach else day_to_date(reach),
+        }
+    return out
+
+
+def capacitor_rows(capacitors, forecast=None):
     capacitors = sorted(capacitors, key=lambda c: designator_key(c.position.designator))
+    predicted = _predicted_by_capacitor(forecast)
     return [
         {
+            "predicted": _predicted_row(predicted.get(c.pk), forecast),
             "designator": c.position.designator,
             "role": c.position.get_role_display(),
             "capacitance": format_capacitance(c.capacitance_uf),
@@ -149,6 +171,28 @@ def capacitor_rows(capacitors):
         }
         for c in capacitors
     ]
+
+
+from scheduling.forecast import DAMAGE_THRESHOLD_CAP as DRIFT_MODEL_MAX_DAMAGE  # noqa: E402
+
+
+def _predicted_row(p, forecast):
+    if p is None:
+        return None
+    share = p["damage"] / p["threshold"] if p["threshold"] > 0 else None
+    return {
+        "damage": f"{p['damage']:.2f}",
+        "threshold": f"{p['threshold']:.2f}",
+        "used_percent": None if share is None else f"{min(share, 9.99) * 100:.0f}%",
+        "over": share is None or share >= 1,
+        "esr": f"{p['esr_ohm']:.3g} Ω",
+        "capacitance": format_capacitance(float(f"{p['capacitance_uf']:.3g}")),
+        # the drift laws are calibrated at damage 1; far past it the figures mean little
+        "beyond": p["damage"] > DRIFT_MODEL_MAX_DAMAGE,
+        "reaches_on": p["reaches_on"],
+        "past": p["reaches_on"] is not None and forecast is not None
+                and p["reaches_on"] <= forecast.computed_at.date(),
+    }
 
 
 def forecast_display(forecast):
@@ -276,8 +320,8 @@ def unit_detail(request, asset_tag):
     return page(request, "fleet/unit_detail.html", {
         "unit": unit,
         "hazards": hazard_words(unit.gear_model),
-        "forecast": forecast_display(_unit_forecast(unit)),
-        "capacitors": capacitor_rows(data["capacitors"]),
+        "forecast": forecast_display(stored := _unit_forecast(unit)),
+        "capacitors": capacitor_rows(data["capacitors"], stored),
         "rentals": data["rentals"],
         "rental_limit": selectors.RENTAL_HISTORY_LENGTH,
         "service_records": data["service_records"],

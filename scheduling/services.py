@@ -167,7 +167,11 @@ def forecast_refresh(*, unit_ids=None, today=None, **options):
 
 def stored_positions(forecast):
     """The per-position results of a stored UnitForecast as a structured array."""
-    return np.frombuffer(bytes(forecast.positions), dtype=POSITION_DTYPE)
+    blob = bytes(forecast.positions or b"")
+    if len(blob) % POSITION_DTYPE.itemsize:
+        # Written with an earlier layout: show nothing until the next refresh rewrites it.
+        return np.zeros(0, dtype=POSITION_DTYPE)
+    return np.frombuffer(blob, dtype=POSITION_DTYPE)
 
 
 def reaches_date(day):

@@ -343,3 +343,10 @@ def test_check_in_leaves_a_healthy_unit_available(effects_model, store):
     unit.refresh_from_db()
     assert UnitForecast.objects.get(unit=unit).status == "ok"
     assert unit.status == Unit.Status.AVAILABLE
+
+
+def test_a_stored_forecast_in_an_older_layout_reads_as_empty(effects_model, store):
+    unit = make_unit(effects_model, store)
+    forecast_refresh(today=TODAY)
+    UnitForecast.objects.filter(unit=unit).update(positions=b"\x00" * 7)
+    assert len(stored_positions(UnitForecast.objects.get(unit=unit))) == 0

@@ -133,3 +133,20 @@ def test_capacitance_is_written_the_way_parts_are_marked():
     assert format_capacitance(10000) == "10000 uF"
     assert format_capacitance(1) == "1 uF"
     assert format_capacitance(22.0) == "22 uF"
+
+
+def test_each_capacitor_shows_its_predicted_state_from_the_forecast(client, users, fleet):
+    from scheduling.services import forecast_refresh
+
+    forecast_refresh(unit_ids=[fleet.unit.pk])
+    client.force_login(users.technician)
+    rows = detail(client).context["capacitors"]
+    assert rows and all(r["predicted"] is not None for r in rows)
+    text = detail(client).content.decode()
+    assert "Life used" in text and "ESR now" in text
+    # the page shows what the engine stored: each row's ESR, or that it is past the drift model
+    for row in rows:
+        if row["predicted"]["beyond"]:
+            assert "beyond the model" in text
+        else:
+            assert row["predicted"]["esr"] in text
