@@ -57,9 +57,9 @@ DEFAULT_HIRE_DAYS_PER_YEAR = 60.0
 DEFAULT_HIRE_LENGTH_DAYS = 2.0
 DEFAULT_VENUE_AMBIENT_C = 25.0
 #: Search range of the due-date solver, days from today.
-SEARCH_PAST_DAYS = 3650.0
+SEARCH_PAST_DAYS = 21915.0  # 60 years
 SEARCH_FUTURE_DAYS = 36525.0
-DUE_DATE_ITERATIONS = 15  # (40175 days) / 2**15: about 1.2 days
+DUE_DATE_ITERATIONS = 16  # (58440 days) / 2**16: under a day
 #: Bisection steps for the pump pair's failure time: (100 years) / 2**36 is
 #: about 0.05 s, far below a day.
 PUMP_ITERATIONS = 36
@@ -293,7 +293,12 @@ def compute(fa, *, today, policy=None, options=None):
     cap = physics.capacitance_at_damage(fa.capacitance_f, damage)
     limit = policy.damage_limit * threshold
     with np.errstate(divide="ignore", invalid="ignore"):
-        reaches = today_day + np.where(rate > 0, (limit - damage) / rate, np.where(damage >= limit, 0.0, np.inf))
+        # Ahead: at the projected rate of use.  Already past: assume the part
+        # aged evenly since it went in, so the crossing is that share of its life.
+        ahead = today_day + np.where(rate > 0, (limit - damage) / rate, np.inf)
+        age_days = np.maximum(today_day - fa.installed_day, 0.0)
+        behind = fa.installed_day + np.where(damage > 0, limit / damage, 0.0) * age_days
+        reaches = np.where(damage >= limit, behind, ahead)
     # A part cannot have crossed before it went in (a threshold of 0 means the
     # requirement fails even for a new part: it crossed on the day it went in).
     reaches = np.where(np.isfinite(reaches), np.maximum(reaches, fa.installed_day), np.nan)
@@ -309,17 +314,22 @@ def compute(fa, *, today, policy=None, options=None):
     safe_threshold = np.where(failed, 1.0, threshold)
     x_now = damage / safe_threshold
     x_rate = rate / safe_threshold
+    # Looking back, each part is taken to have aged evenly since it went in.
+    age_days = np.maximum(today_day - fa.installed_day, 1.0)
+    x_rate_past = x_now / age_days
 
     def risk_function(rows, unit_of_row, n):
         """Risk over the horizon for ``n`` units made of capacitor ``rows``."""
-        xn, xr = x_now[rows], x_rate[rows]
+        xn, xr, xp = x_now[rows], x_rate[rows], x_rate_past[rows]
+
+        def x_at(t):
+            return np.maximum(xn + np.where(t < 0, xp, xr) * t, 0.0)
         dead = np.bincount(unit_of_row, weights=failed[rows].astype(float), minlength=n) > 0
 
         def risk_at(t_days):
             """Unit risk over the horizon starting ``t_days`` (per unit) from today."""
             t = t_days[unit_of_row]
-            x0 = np.maximum(xn + xr * t, 0.0)
-            x1 = np.maximum(x0 + xr * policy.horizon_days, 0.0)
+            x0, x1 = x_at(t), x_at(t + policy.horizon_days)
             dh = physics.cumulative_hazard(x1, 1.0, beta) - physics.cumulative_hazard(x0, 1.0, beta)
             total = np.bincount(unit_of_row, weights=dh, minlength=n)
             return np.where(dead, 1.0, -np.expm1(-total))
