@@ -21,7 +21,7 @@ run: $(STAMP)
 	mkdir -p var/mail var/celery/queue var/celery/processed var/celery/control
 	DEBUG=true $(BIN)/python manage.py migrate --noinput
 	DEBUG=true $(BIN)/python manage.py demo_setup
-	DEBUG=true bash -c 'trap "kill 0" EXIT; \
+	DEBUG=true bash -c 'trap "trap - INT TERM EXIT; kill 0" INT TERM EXIT; \
 	  $(BIN)/celery -A config worker -B --pool=solo --loglevel=WARNING & \
 	  $(BIN)/python manage.py runserver 127.0.0.1:8000'
 
