@@ -303,8 +303,9 @@ def load_fleet(*, unit_ids=None, today, min_history_days=180):
     caps = read_capacitors(filter_ids)
     cap_unit_index = _index_of(unit_ids_arr, caps["unit_id"])
     keep = cap_unit_index >= 0  # capacitors of retired units are left out
-    caps = {k: v[keep] for k, v in caps.items()}
-    cap_unit_index = cap_unit_index[keep]
+    if not keep.all():
+        caps = {k: v[keep] for k, v in caps.items()}
+        cap_unit_index = cap_unit_index[keep]
 
     pos_qs = Position.objects.order_by("pk")
     if filter_ids is not None:
