@@ -92,8 +92,8 @@ GENERAL_DAMAGE_THRESHOLD = 1.0
 DAMAGE_MAX = 20.0
 
 #: Fixed number of bisection steps on [0, DAMAGE_MAX].  numerical: the bracket
-#: shrinks to 20 / 2**60 (about 2e-17), below double precision near D = 1.
-BISECTION_ITERATIONS = 60
+#: shrinks to 20 / 2**44 (about 1e-12), far below any meaningful damage.
+BISECTION_ITERATIONS = 44
 
 #: Fixed RK4 steps over one constant-ambient interval in
 #: ``damage_with_esr_feedback``.  numerical: agrees with

@@ -157,11 +157,15 @@ def forecast_refresh(*, unit_ids=None, today=None, **options):
     not forecast and their old results are removed.  Returns the ForecastRun.
     """
     run = forecast_compute(unit_ids=unit_ids, today=today, **options)
-    _store(run)
-    retired = UnitForecast.objects.filter(unit__status=Unit.Status.RETIRED)
-    if unit_ids is not None:
-        retired = retired.filter(unit_id__in=unit_ids)
-    retired.delete()
+    with transaction.atomic():
+        _store(run)
+        # Units asked for but not forecast are retired (or gone): drop their old results.
+        if unit_ids is None:
+            UnitForecast.objects.filter(unit__status=Unit.Status.RETIRED).delete()
+        else:
+            missing = set(unit_ids) - set(run.fleet.unit_id.tolist())
+            if missing:
+                UnitForecast.objects.filter(unit_id__in=missing).delete()
     return run
 
 
