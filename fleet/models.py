@@ -198,12 +198,12 @@ class CapacitorRatings(models.Model):
 
     @property
     def initial_esr_ohm(self):
-        """ESR at 120 Hz; from tan delta when no ESR is given: ESR = tan d / (2 pi f C)."""
+        """ESR at 120 Hz; from tan delta when no ESR is given (physics.esr_from_tan_delta_ohm)."""
         if self.esr_ohm is not None:
             return self.esr_ohm
-        import math
+        from scheduling.physics import esr_from_tan_delta_ohm
 
-        return self.tan_delta / (2 * math.pi * 120.0 * self.capacitance_uf * 1e-6)
+        return esr_from_tan_delta_ohm(self.tan_delta, self.capacitance_uf * 1e-6)
 
 
 def _ratings_constraints(prefix):

@@ -68,6 +68,13 @@ CHUNK = 20_000
 
 STATUS_OK, STATUS_WATCH, STATUS_DUE, STATUS_OVERDUE = "ok", "watch", "due", "overdue"
 
+#: Capacitor roles as small integers in the arrays (names as in fleet.models.Role).
+ROLE_CODES = {
+    "general": 0, "supply_decoupling": 1, "timing": 2, "supply_reservoir": 3,
+    "pump_flying": 4, "pump_reservoir": 5, "signal_coupling": 6,
+}
+ROLE_NAMES = {v: k for k, v in ROLE_CODES.items()}
+
 
 @dataclass
 class Policy:
@@ -409,8 +416,6 @@ def _circuit(fa, name, rows):
 
 def _thresholds(fa, damage, rate):
     """Role-aware damage threshold D* per capacitor (step 4)."""
-    from .loader import ROLE_CODES
-
     nc = fa.n_caps
     threshold = np.full(nc, P.GENERAL_DAMAGE_THRESHOLD)
     role = fa.pos_role[fa.position_index]
@@ -448,8 +453,6 @@ def _pump_thresholds(fa, damage, rate, threshold, role):
     magnitude, by vectorised bisection; each part's threshold is its damage at
     that moment.  A pair whose rail fails even with new parts gets 0.
     """
-    from .loader import ROLE_CODES
-
     pump = np.flatnonzero((role == ROLE_CODES["pump_flying"]) | (role == ROLE_CODES["pump_reservoir"]))
     if not pump.size:
         return
@@ -530,8 +533,6 @@ _REASON_CACHE = {}
 
 
 def _position_reason_template(fa, pos, reach_day, today_day, threshold_is_zero):
-    from .loader import ROLE_NAMES
-
     des = fa.pos_designator[pos].replace("{", "{{").replace("}", "}}")
     role = ROLE_NAMES[int(fa.pos_role[pos])]
     c = fa.pos_circuit

@@ -16,16 +16,12 @@ from django.db.models import F, FloatField, Func, Sum
 from fleet.models import GearModel, MaintenancePolicy, Position, Rental, Unit, UnitCapacitor
 
 from . import histogram as H
+from . import physics
+from .forecast import ROLE_CODES, date_to_day
 from .models import HistogramSnapshot, ThermalHistory
-from .thermal import joined_at, location_monthly_temps
+from .thermal import location_monthly_temps
 
 CHUNK_ROWS = 20_000
-ROLE_CODES = {
-    "general": 0, "supply_decoupling": 1, "timing": 2, "supply_reservoir": 3,
-    "pump_flying": 4, "pump_reservoir": 5, "signal_coupling": 6,
-}
-ROLE_NAMES = {v: k for k, v in ROLE_CODES.items()}
-EPOCH = dt.date(1970, 1, 1)
 
 
 @dataclass
@@ -92,16 +88,6 @@ CIRCUIT_FIELDS = (
 )
 
 
-def _day(value):
-    if value is None:
-        return np.nan
-    if isinstance(value, dt.datetime):
-        return (value - dt.datetime(1970, 1, 1, tzinfo=dt.timezone.utc)).total_seconds() / 86400.0
-    if isinstance(value, str):
-        value = dt.date.fromisoformat(value[:10])
-    return float((value - EPOCH).days)
-
-
 def _f(x):
     return np.nan if x is None else float(x)
 
@@ -140,13 +126,6 @@ def _capacitor_sql(unit_filter_sql):
         sql += f" WHERE {qn('unit_id')} IN ({unit_filter_sql})"
     sql += f" ORDER BY {qn('unit_id')}, {qn('id')}"
     return sql
-
-
-def capacitor_count(unit_ids=None):
-    qs = UnitCapacitor.objects.all()
-    if unit_ids is not None:
-        qs = qs.filter(unit_id__in=unit_ids)
-    return qs.count()
 
 
 def read_capacitors(unit_ids=None, bare=False):
@@ -286,7 +265,7 @@ def load_fleet(*, unit_ids=None, today, min_history_days=180):
     monthly = np.array([temps[u[3]] for u in units]).reshape(n, 12)
 
     use = recent_use(filter_ids, today)
-    today_day = _day(today)
+    today_day = date_to_day(today)
     uidx = {uid: k for k, uid in enumerate(ids)}
     use_p = np.full(n, np.nan)
     use_o = np.full(n, np.nan)
@@ -328,8 +307,7 @@ def load_fleet(*, unit_ids=None, today, min_history_days=180):
 
     esr0 = caps["esr_ohm"].copy()
     missing = np.isnan(esr0)
-    # ESR from tan delta at 120 Hz: ESR = tan d / (2 pi f C)
-    esr0[missing] = caps["tan_delta"][missing] / (2 * np.pi * 120.0 * caps["capacitance_uf"][missing] * 1e-6)
+    esr0[missing] = physics.esr_from_tan_delta_ohm(caps["tan_delta"][missing], caps["capacitance_uf"][missing] * 1e-6)
 
     return FleetArrays(
         unit_id=unit_ids_arr,

@@ -6,7 +6,6 @@ service and the views call it).  It reads each table once, computes with
 it twice leaves the same rows.
 """
 
-import datetime as dt
 
 import numpy as np
 from django.db import DEFAULT_DB_ALIAS, connection, connections, transaction
@@ -15,7 +14,8 @@ from django.utils import timezone
 from fleet.models import Unit
 
 from .forecast import EngineOptions, Policy, compute, day_to_date
-from .loader import ROLE_NAMES, active_policy, load_fleet
+from .forecast import ROLE_NAMES
+from .loader import active_policy, load_fleet
 from .models import UnitForecast
 
 #: Layout of the per-position results stored in UnitForecast.positions.
@@ -107,7 +107,7 @@ def _store(run):
     fa, r = run.fleet, run.result
     now = timezone.now()
     # All positions in unit order in one record array; each unit's bytes are a slice.
-    order = np.concatenate([run.rows_of(u) for u in range(fa.n_units)]) if fa.n_units else np.zeros(0, np.int64)
+    order = run._order  # capacitor rows grouped by unit, units in order
     packed = np.empty(order.size, dtype=POSITION_DTYPE)
     packed["capacitor_id"] = fa.cap_id[order]
     for name in ("damage", "esr_ohm", "capacitance_f", "threshold"):
@@ -115,18 +115,15 @@ def _store(run):
     packed["reaches_day"] = r.reaches_day[order]
     blob = packed.tobytes()
     size = POSITION_DTYPE.itemsize
-    ends = np.cumsum([run.rows_of(u).size for u in range(fa.n_units)]) if fa.n_units else []
     rows = []
-    start = 0
     for u in range(fa.n_units):
-        end = int(ends[u])
+        start, end = int(run._starts[u]), int(run._ends[u])
         due = r.due_day[u]
         rows.append((
             int(fa.unit_id[u]), now, r.status[u], None if np.isnan(due) else day_to_date(due),
             float(r.risk[u]), int(run.policy.horizon_days), float(r.max_damage_ratio[u]),
             bool(r.storage_reform[u]), r.reasons[u], blob[start * size:end * size],
         ))
-        start = end
     columns = ["unit_id", "computed_at", "status", "due_date", "risk", "horizon_days", "max_damage_ratio",
                "storage_reform", "reasons", "positions"]
     qn = connection.ops.quote_name
@@ -176,17 +173,3 @@ def stored_positions(forecast):
         # Written with an earlier layout: show nothing until the next refresh rewrites it.
         return np.zeros(0, dtype=POSITION_DTYPE)
     return np.frombuffer(blob, dtype=POSITION_DTYPE)
-
-
-def reaches_date(day):
-    return None if np.isnan(day) else day_to_date(day)
-
-
-def today_default():
-    return timezone.localdate()
-
-
-def as_date(value):
-    if isinstance(value, dt.date):
-        return value
-    return dt.date.fromisoformat(value)
