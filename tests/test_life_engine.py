@@ -350,3 +350,28 @@ def test_a_stored_forecast_in_an_older_layout_reads_as_empty(effects_model, stor
     forecast_refresh(today=TODAY)
     UnitForecast.objects.filter(unit=unit).update(positions=b"\x00" * 7)
     assert len(stored_positions(UnitForecast.objects.get(unit=unit))) == 0
+
+
+@pytest.mark.parametrize("law, ea", [("10k", None), ("arrhenius", 0.8315)])
+def test_equivalent_temperature_inverts_the_life_law(law, ea):
+    """The feedback path's constant equivalent temperature must give back the
+    life it came from under physics.life_hours_10k / life_hours_arrhenius."""
+    from scheduling.forecast import _equivalent_temp_c
+
+    opts = EngineOptions(law=law, activation_energy_ev=ea)
+    life = np.array([5_000.0, 64_000.0, 400_000.0])
+    temp = _equivalent_temp_c(life, 2000.0, 85.0, opts)
+    back = (physics.life_hours_10k(2000.0, 85.0, temp) if law == "10k"
+            else physics.life_hours_arrhenius(2000.0, 85.0, temp, ea))
+    np.testing.assert_allclose(back, life, rtol=1e-9)
+
+
+def test_recent_use_counts_hours_out_from_the_hire_times(effects_model, store):
+    """Hours out on hire come from the database's own date arithmetic."""
+    from scheduling.loader import recent_use
+
+    unit = make_unit(effects_model, store)
+    hire(unit, aware(2026, 10, 1, 9), days=3, powered_hours=20, ambient_c=30)
+    powered, out, ambient = recent_use([unit.pk], TODAY)[unit.pk]
+    assert (powered, ambient) == (20.0, 30.0)
+    assert out == pytest.approx(72.0, abs=1e-6)
