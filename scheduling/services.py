@@ -6,6 +6,7 @@ service and the views call it).  It reads each table once, computes with
 it twice leaves the same rows.
 """
 
+import json
 
 import numpy as np
 from django.db import DEFAULT_DB_ALIAS, connection, connections, transaction
@@ -101,9 +102,20 @@ def forecast_compute(*, unit_ids=None, today=None, law=None, activation_energy_e
     return ForecastRun(fleet, result, pol, today)
 
 
+def _day_dates(days):
+    """Float days since 1970-01-01 (NaN: none) to a list of datetime.date or None."""
+    days = np.asarray(days, dtype=float)
+    out = np.floor(np.nan_to_num(days)).astype("int64").astype("datetime64[D]").tolist()
+    return [None if missing else d for d, missing in zip(out, np.isnan(days).tolist())]
+
+
 def _store(run):
-    """Upsert one UnitForecast row per unit with a single prepared statement
-    (``INSERT ... ON CONFLICT (unit_id) DO UPDATE``, SQLite and PostgreSQL)."""
+    """Upsert one UnitForecast row per unit in a single statement.
+
+    PostgreSQL: one ``INSERT ... SELECT FROM unnest(arrays) ON CONFLICT``, all
+    rows in one round trip.  SQLite: one prepared ``INSERT ... ON CONFLICT``
+    run over the rows (``executemany``, in-process, no round trips).
+    """
     fa, r = run.fleet, run.result
     now = timezone.now()
     # All positions in unit order in one record array; each unit's bytes are a slice.
@@ -115,36 +127,47 @@ def _store(run):
     packed["reaches_day"] = r.reaches_day[order]
     blob = packed.tobytes()
     size = POSITION_DTYPE.itemsize
-    rows = []
-    for u in range(fa.n_units):
-        start, end = int(run._starts[u]), int(run._ends[u])
-        due = r.due_day[u]
-        rows.append((
-            int(fa.unit_id[u]), now, r.status[u], None if np.isnan(due) else day_to_date(due),
-            float(r.risk[u]), int(run.policy.horizon_days), float(r.max_damage_ratio[u]),
-            bool(r.storage_reform[u]), r.reasons[u], blob[start * size:end * size],
-        ))
+    bounds = zip((run._starts * size).tolist(), (run._ends * size).tolist())
+    positions = [blob[a:b] for a, b in bounds]
+    unit_ids = fa.unit_id.tolist()
+    due = _day_dates(r.due_day)
+    risk = r.risk.astype(float).tolist()
+    ratio = r.max_damage_ratio.astype(float).tolist()
+    reform = r.storage_reform.astype(bool).tolist()
+    reasons = [json.dumps(words) for words in r.reasons]
+    horizon = int(run.policy.horizon_days)
+
     columns = ["unit_id", "computed_at", "status", "due_date", "risk", "horizon_days", "max_damage_ratio",
                "storage_reform", "reasons", "positions"]
     qn = connection.ops.quote_name
     table = qn(UnitForecast._meta.db_table)
     updates = ", ".join(f"{qn(c)} = excluded.{qn(c)}" for c in columns[1:])
-    sql = (f"INSERT INTO {table} ({', '.join(qn(c) for c in columns)}) "
-           f"VALUES ({', '.join(['%s'] * len(columns))}) "
-           f"ON CONFLICT ({qn('unit_id')}) DO UPDATE SET {updates}")
-    meta = UnitForecast._meta
-    conn = connections[DEFAULT_DB_ALIAS]  # the wrapper itself: no proxy lookups per value
-    computed_at = meta.get_field("computed_at").get_db_prep_save(now, conn)
-    adapt_date = conn.ops.adapt_datefield_value
-    prep_reasons = meta.get_field("reasons").get_db_prep_save
+    conflict = f"ON CONFLICT ({qn('unit_id')}) DO UPDATE SET {updates}"
+    insert = f"INSERT INTO {table} ({', '.join(qn(c) for c in columns)}) "
     with transaction.atomic(), connection.cursor() as cursor:
-        prepared = [
-            (row[0], computed_at, row[2], adapt_date(row[3]), row[4], row[5], row[6], row[7],
-             prep_reasons(row[8], conn), row[9])
-            for row in rows
-        ]
-        cursor.executemany(sql, prepared)
-    return len(rows)
+        if connection.vendor == "postgresql":
+            # Server-side binding with binary parameters: the arrays travel as
+            # they are, not quoted into the SQL text.
+            import psycopg
+
+            raw = psycopg.Cursor(connection.connection)
+            raw.execute(
+                insert + "SELECT u, %b, s, d, r, %b::integer, m, f, j::jsonb, p FROM unnest("
+                "%b::bigint[], %b::text[], %b::date[], %b::float8[], %b::float8[], %b::bool[], %b::text[], "
+                "%b::bytea[]) AS x(u, s, d, r, m, f, j, p) " + conflict,
+                [now, horizon, unit_ids, list(r.status), due, risk, ratio, reform, reasons, positions],
+            )
+            raw.close()
+        else:
+            conn = connections[DEFAULT_DB_ALIAS]
+            computed_at = UnitForecast._meta.get_field("computed_at").get_db_prep_save(now, conn)
+            due_text = [None if d is None else d.isoformat() for d in due]
+            cursor.executemany(
+                insert + f"VALUES ({', '.join(['%s'] * len(columns))}) " + conflict,
+                [(uid, computed_at, s, d, rk, horizon, m, f, j, p) for uid, s, d, rk, m, f, j, p
+                 in zip(unit_ids, r.status, due_text, risk, ratio, reform, reasons, positions)],
+            )
+    return len(unit_ids)
 
 
 def forecast_refresh(*, unit_ids=None, today=None, **options):
