@@ -59,7 +59,15 @@ DEFAULT_VENUE_AMBIENT_C = 25.0
 #: Search range of the due-date solver, days from today.
 SEARCH_PAST_DAYS = 21915.0  # 60 years
 SEARCH_FUTURE_DAYS = 36525.0
-DUE_DATE_ITERATIONS = 16  # (58440 days) / 2**16: under a day
+#: The risk-crossing solver (numerical): stop when the bracket is under half
+#: a day; halve the bracket this many times before the secant steps start;
+#: give up after this many steps (bisection alone needs 17 for 60 + 100 years).
+DUE_DATE_TOLERANCE_DAYS = 0.5
+#: Days ahead at which the risk is looked at before the crossing is solved
+#: (the risk given survival can peak and fall back).  Our choice.
+RISK_LOOKAHEAD_DAYS = (90.0, 365.0, 1095.0, 3652.0, 10957.0)
+DUE_DATE_BISECTIONS = 3
+DUE_DATE_MAX_STEPS = 40
 #: Bisection steps for the pump pair's failure time: (100 years) / 2**36 is
 #: about 0.05 s, far below a day.
 PUMP_ITERATIONS = 36
@@ -97,6 +105,7 @@ class EngineOptions:
     law: str = P.DEFAULT_LAW
     activation_energy_ev: float = None
     weibull_shape: float = P.WEIBULL_SHAPE
+    frailty_sigma: float = P.FRAILTY_SIGMA
     esr_feedback: bool = False
     min_history_days: float = 180.0
 
@@ -107,6 +116,11 @@ class EngineOptions:
             raise ValueError("activation_energy_ev must be above zero for the Arrhenius law")
         if not self.weibull_shape > 0:
             raise ValueError("weibull_shape must be above zero")
+        if not self.frailty_sigma >= 0:
+            raise ValueError("frailty_sigma must be zero or above")
+        if self.weibull_shape * self.frailty_sigma > P.FRAILTY_HAZARD_SIGMA_MAX:
+            raise ValueError(f"weibull_shape x frailty_sigma must not exceed {P.FRAILTY_HAZARD_SIGMA_MAX:g} "
+                             f"(got {self.weibull_shape * self.frailty_sigma:g})")
 
 
 @dataclass
@@ -236,16 +250,37 @@ def projected_use(fa):
 
 
 def _first_per_unit(unit_index, key, n_units, k=1):
-    """Capacitor row indices of the ``k`` smallest ``key`` per unit (-1 where none)."""
-    order = np.lexsort((key, unit_index))
-    sorted_units = unit_index[order]
-    starts = np.searchsorted(sorted_units, np.arange(n_units), side="left")
-    ends = np.searchsorted(sorted_units, np.arange(n_units), side="right")
+    """Capacitor row indices of the ``k`` smallest ``key`` per unit (-1 where none);
+    ties go to the earlier row."""
     out = np.full((n_units, k), -1, dtype=np.int64)
+    if not unit_index.size:
+        return out
+    if np.any(unit_index[1:] < unit_index[:-1]):  # not grouped by unit: sort
+        order = np.lexsort((key, unit_index))
+        sorted_units = unit_index[order]
+        starts = np.searchsorted(sorted_units, np.arange(n_units), side="left")
+        ends = np.searchsorted(sorted_units, np.arange(n_units), side="right")
+        for j in range(k):
+            pos = starts + j
+            ok = pos < ends
+            out[ok, j] = order[pos[ok]]
+        return out
+    # Rows grouped by unit (as the loader reads them): k passes of a per-unit
+    # minimum, each removing the row it found.
+    starts = np.searchsorted(unit_index, np.arange(n_units), side="left")
+    ends = np.searchsorted(unit_index, np.arange(n_units), side="right")
+    has = np.flatnonzero(ends > starts)
+    work = key.astype(float).copy()
+    rows = np.arange(work.size)
+    sizes = ends[has] - starts[has]
     for j in range(k):
-        pos = starts + j
-        ok = pos < ends
-        out[ok, j] = order[pos[ok]]
+        # fmin skips NaN, the mark of a row already taken.
+        least = np.fmin.reduceat(work, starts[has])
+        hit = work == np.repeat(least, sizes)
+        first = np.minimum.reduceat(np.where(hit, rows, work.size), starts[has])
+        ok = first < work.size
+        out[has[ok], j] = first[ok]
+        work[first[ok]] = np.nan
     return out
 
 
@@ -325,8 +360,16 @@ def compute(fa, *, today, policy=None, options=None):
     age_days = np.maximum(today_day - fa.installed_day, 1.0)
     x_rate_past = x_now / age_days
 
-    def risk_function(rows, unit_of_row, n):
-        """Risk over the horizon for ``n`` units made of capacitor ``rows``."""
+    def risk_function(rows, unit_of_row, n, subset=None, log_hazard=False):
+        """Risk over the horizon for ``n`` units made of capacitor ``rows``
+        (only the units ``subset``, renumbered 0.., when given); with
+        ``log_hazard`` the log of the summed hazard instead (what the
+        crossing solver works on: far closer to linear in time than the risk)."""
+        if subset is not None:
+            local = np.full(n, -1, dtype=np.int64)
+            local[subset] = np.arange(subset.size)
+            keep = local[unit_of_row] >= 0
+            rows, unit_of_row, n = rows[keep], local[unit_of_row[keep]], subset.size
         xn, xr, xp = x_now[rows], x_rate[rows], x_rate_past[rows]
 
         def x_at(t):
@@ -337,38 +380,17 @@ def compute(fa, *, today, policy=None, options=None):
             """Unit risk over the horizon starting ``t_days`` (per unit) from today."""
             t = t_days[unit_of_row]
             x0, x1 = x_at(t), x_at(t + policy.horizon_days)
-            dh = physics.cumulative_hazard(x1, 1.0, beta) - physics.cumulative_hazard(x0, 1.0, beta)
-            total = np.bincount(unit_of_row, weights=dh, minlength=n)
+            h0 = np.bincount(unit_of_row, weights=physics.cumulative_hazard(x0, 1.0, beta), minlength=n)
+            h1 = np.bincount(unit_of_row, weights=physics.cumulative_hazard(x1, 1.0, beta), minlength=n)
+            total = physics.unit_conditional_hazard(h0, h1, beta, opts.frailty_sigma)
+            if log_hazard:
+                return np.where(dead, np.inf, np.log(np.maximum(total, 1e-300)))
             return np.where(dead, 1.0, -np.expm1(-total))
 
         return risk_at
 
-    risk_at = risk_function(np.arange(nc), ui, nu)
-    risk = risk_at(np.zeros(nu)) if nc else np.zeros(nu)
-    risk_day = np.full(nu, np.nan)
-    if nc:
-        at_lo = risk_at(np.full(nu, -SEARCH_PAST_DAYS)) >= policy.risk_limit
-        at_hi = risk_at(np.full(nu, SEARCH_FUTURE_DAYS)) >= policy.risk_limit
-        hi = np.full(nu, SEARCH_FUTURE_DAYS)
-        # Bisect only the units that cross inside the search range, over their
-        # own capacitors (units already past, or never reaching, are settled).
-        open_units = np.flatnonzero(~at_lo & at_hi)
-        if open_units.size:
-            local = np.full(nu, -1, dtype=np.int64)
-            local[open_units] = np.arange(open_units.size)
-            rows = np.flatnonzero(local[ui] >= 0)
-            sub_risk = risk_function(rows, local[ui[rows]], open_units.size)
-            lo_s = np.full(open_units.size, -SEARCH_PAST_DAYS)
-            hi_s = np.full(open_units.size, SEARCH_FUTURE_DAYS)
-            for _ in range(DUE_DATE_ITERATIONS):
-                mid = 0.5 * (lo_s + hi_s)
-                above = sub_risk(mid) >= policy.risk_limit
-                hi_s = np.where(above, mid, hi_s)
-                lo_s = np.where(above, lo_s, mid)
-            hi[open_units] = hi_s
-        risk_day = np.where(at_lo, today_day - SEARCH_PAST_DAYS, np.where(at_hi, today_day + hi, np.nan))
-
-    # 6. due dates
+    # 6. the dates that do not depend on the risk: a position reaching its
+    # limit, the calendar-age limit of original parts
     pos_day = np.full(nu, np.nan)
     if nc:
         key = np.where(np.isnan(reaches), np.inf, reaches)
@@ -379,6 +401,13 @@ def compute(fa, *, today, policy=None, options=None):
     if nc:
         has_original[ui[fa.is_original]] = True
     age_day = np.where(has_original, fa.manufactured_day + policy.calendar_age_years * DAYS_PER_YEAR, np.nan)
+    other_day = np.fmin(pos_day, age_day)
+
+    risk_at = risk_function(np.arange(nc), ui, nu)
+    risk = risk_at(np.zeros(nu)) if nc else np.zeros(nu)
+    risk_day = _risk_crossing_day(risk_function, risk_at, risk, fa, today_day, policy, other_day) \
+        if nc else np.full(nu, np.nan)
+
     due_day = np.fmin(np.fmin(risk_day, pos_day), age_day)
 
     status = []
@@ -408,6 +437,134 @@ def compute(fa, *, today, policy=None, options=None):
     return FleetForecast(today_day=today_day, damage=damage, esr_ohm=esr, capacitance_f=cap, threshold=threshold,
                          rate_per_day=rate, reaches_day=reaches, risk=risk, due_day=due_day, status=status,
                          storage_reform=storage_reform, max_damage_ratio=ratio, reasons=reasons)
+
+
+def _risk_crossing_day(risk_function, risk_at, risk_now, fa, today_day, policy, other_day):
+    """Day the unit's risk over the horizon reaches the policy limit, where it
+    matters: before ``other_day`` (the earliest other due date) for the due
+    date, or within the watch window for the reasons.
+
+    Units whose crossing cannot matter are not solved: a crossing already
+    passed but after ``other_day`` is given as today (it only says "now" in
+    the reasons), one beyond both ``other_day`` and the watch window as NaN.
+    A unit with a part that fails its requirement even when new is at risk
+    from its oldest part's fitting.
+    """
+    nu, ui = fa.n_units, fa.unit_index
+    limit = policy.risk_limit
+    # Before its oldest part went in every x is 0: the risk is 0 there,
+    # unless a part fails its requirement even when new (risk 1 always).
+    oldest = np.full(nu, today_day)
+    np.minimum.at(oldest, ui, fa.installed_day)
+    lo = np.maximum(oldest - today_day, -SEARCH_PAST_DAYS)
+    dead = risk_at(lo) >= limit
+    now_above = risk_now >= limit
+    other = other_day - today_day  # NaN: no other date
+    window = max(policy.watch_days, policy.horizon_days)
+    # The far end of the bracket that matters: the other date when the
+    # crossing is already past; later of the other date and the watch window ahead.
+    ahead = np.clip(np.where(np.isnan(other), SEARCH_FUTURE_DAYS, np.fmax(other, window)), 0.0, SEARCH_FUTURE_DAYS)
+    t_end = np.where(now_above, np.where(other < 0, np.maximum(other, lo), 0.0), ahead)
+    t_start = np.where(now_above, lo, 0.0)
+    # Given that the unit works, the risk need not rise for ever (a unit far
+    # past its predicted life is evidence that it ages slower): it can rise
+    # through the limit and fall back.  Look ahead at a few dates first, so
+    # that a crossing before the end of the bracket is not missed.
+    ahead_units = np.flatnonzero(~now_above & ~dead)
+    for t_look in RISK_LOOKAHEAD_DAYS:
+        ahead_units = ahead_units[t_end[ahead_units] > t_look]
+        if not ahead_units.size:
+            break
+        above = risk_function(np.arange(fa.n_caps), ui, nu, subset=ahead_units)(
+            np.full(ahead_units.size, t_look)) >= limit
+        t_end[ahead_units[above]] = t_look
+        ahead_units = ahead_units[~above]
+    r_end = risk_at(t_end)
+    solve = ~dead & (r_end >= limit) & (t_end > t_start)
+    day = np.where(dead, today_day + lo, np.where(now_above, today_day, np.nan))
+    day[solve] = today_day + t_end[solve]
+    open_units = np.flatnonzero(solve & (t_end - t_start > DUE_DATE_TOLERANCE_DAYS))
+    if not open_units.size:
+        return day
+    r_start = np.where(now_above, 0.0, risk_now)  # at lo the risk is 0 (not dead)
+    local = np.full(nu, -1, dtype=np.int64)
+    local[open_units] = np.arange(open_units.size)
+    rows = np.flatnonzero(local[ui] >= 0)
+
+    def log_h(r):
+        # The risk reaches the limit where the summed hazard reaches -ln(1 - limit).
+        with np.errstate(divide="ignore"):
+            return np.log(np.maximum(-np.log1p(-np.minimum(r, 1.0)), 1e-300))
+
+    crossing = _first_crossing(
+        _Shrinking(lambda subset: risk_function(rows, local[ui[rows]], open_units.size, subset=subset,
+                                                log_hazard=True)),
+        t_start[open_units], t_end[open_units], log_h(r_start[open_units]), log_h(r_end[open_units]),
+        np.log(-np.log1p(-limit)))
+    day[open_units] = today_day + crossing
+    return day
+
+
+class _Shrinking:
+    """``value_of(units, t)`` for :func:`_first_crossing` from a factory of
+    evaluators over a subset of units; the evaluator is rebuilt on the smaller
+    subset only when the units asked for fall to half of those it holds."""
+
+    def __init__(self, factory):
+        self.factory, self.units, self.evaluate = factory, None, None
+
+    def __call__(self, units, t):
+        if self.units is None or units.size * 2 <= self.units.size:
+            self.units, self.evaluate = units, self.factory(units)
+        if units.size == self.units.size:
+            return self.evaluate(t)
+        t_all = np.zeros(self.units.size)
+        where = np.searchsorted(self.units, units)
+        t_all[where] = t
+        return self.evaluate(t_all)[where]
+
+
+def _first_crossing(value_of, lo, hi, value_lo, value_hi, limit, tol_days=DUE_DATE_TOLERANCE_DAYS):
+    """Per unit, the time t in (lo, hi] where an increasing ``value_of(units, t)``
+    reaches ``limit``; requires ``value_lo`` < limit at lo and ``value_hi`` >= limit at hi.
+
+    ``value_of(units, t)`` evaluates the units ``units`` (indices into lo/hi)
+    at their times ``t``.  A few bisection steps first (the values saturate at
+    the far ends), then the Illinois variant of regula falsi on the value,
+    with a bisection whenever a step would not shrink the bracket enough.
+    Each step works on the units not yet within ``tol_days``.  Returns hi.
+    """
+    lo, hi = lo.astype(float).copy(), hi.astype(float).copy()
+    f_lo = np.asarray(value_lo, dtype=float) - limit
+    f_hi = np.asarray(value_hi, dtype=float) - limit
+    side = np.zeros(lo.size, dtype=np.int8)  # which end moved last: -1 lo, +1 hi
+    for step in range(DUE_DATE_MAX_STEPS):
+        active = np.flatnonzero(hi - lo > tol_days)
+        if not active.size:
+            break
+        a, b, fa_, fb = lo[active], hi[active], f_lo[active], f_hi[active]
+        mid = 0.5 * (a + b)
+        if step < DUE_DATE_BISECTIONS:
+            t = mid
+        else:
+            with np.errstate(divide="ignore", invalid="ignore"):
+                t = b - fb * (b - a) / (fb - fa_)
+            width = b - a
+            t = np.where(np.isfinite(t), t, mid)
+            # A step that lands next to an end goes almost a tolerance in, so
+            # that the next bracket is either under the tolerance or far smaller.
+            margin = np.minimum(0.9 * tol_days, 0.5 * width)
+            t = np.clip(t, a + margin, b - margin)
+        f = value_of(active, t) - limit
+        up = f >= 0
+        k_hi, k_lo = active[up], active[~up]
+        hi[k_hi], f_hi[k_hi] = t[up], f[up]
+        lo[k_lo], f_lo[k_lo] = t[~up], f[~up]
+        # Illinois: an end kept twice in a row has its value halved.
+        f_lo[k_hi[side[k_hi] == 1]] *= 0.5
+        f_hi[k_lo[side[k_lo] == -1]] *= 0.5
+        side[k_hi], side[k_lo] = 1, -1
+    return hi
 
 
 def _circuit(fa, name, rows):
@@ -514,22 +671,18 @@ def _when(day, today_day):
     return f"since about {month}" if day < today_day else f"by {month}"
 
 
-def _position_reason(fa, i, reach_day, today_day, damage, threshold):
-    """Words for capacitor row i.  The wording is cached per (position, month,
-    crossed?) as a template, since the units of one gear model share their
-    positions' words; only the damage figures differ between units."""
+def _position_reason(fa, cache, i, reach_day, today_day, damage, threshold):
+    """Words for capacitor row i.  The wording is kept in ``cache`` (one per
+    forecast run) per (position, month, crossed?) as a template, since the
+    units of one gear model share their positions' words; only the damage
+    figures differ between units."""
     past = reach_day < today_day
     pos = int(fa.position_index[i])
-    key = (id(fa), pos, None if past else _month(int(np.floor(reach_day))), threshold <= 0)
-    template = _REASON_CACHE.get(key)
+    key = (pos, None if past else _month(int(np.floor(reach_day))), threshold <= 0)
+    template = cache.get(key)
     if template is None:
-        if len(_REASON_CACHE) > 100_000:
-            _REASON_CACHE.clear()
-        template = _REASON_CACHE[key] = _position_reason_template(fa, pos, reach_day, today_day, threshold <= 0)
+        template = cache[key] = _position_reason_template(fa, pos, reach_day, today_day, threshold <= 0)
     return template.format(damage=damage, threshold=threshold) if past else template
-
-
-_REASON_CACHE = {}
 
 
 def _position_reason_template(fa, pos, reach_day, today_day, threshold_is_zero):
@@ -560,27 +713,45 @@ def _reasons(fa, policy, today_day, damage, threshold, reaches, risk, risk_day, 
     key = np.where(np.isnan(reaches), np.inf, reaches)
     first = _first_per_unit(fa.unit_index, key, nu, k=2) if fa.n_caps else np.full((nu, 2), -1)
     horizon_end = today_day + max(policy.watch_days, policy.horizon_days)
+    # Which units say anything at all, decided on whole arrays; the loop below
+    # only writes the words.  Plain lists: no numpy scalars in the loop.
+    risk_says = (risk_day <= horizon_end).tolist()  # NaN compares False
+    first_key = np.where(first >= 0, key[np.maximum(first, 0)], np.inf)
+    pos_says = (np.isfinite(first_key) & (first_key <= horizon_end)).tolist()
+    age_says = (has_original & (age_day <= horizon_end)).tolist()
+    reform = storage_reform.tolist()
+    says = np.array(risk_says) | np.any(pos_says, axis=1) | np.array(age_says) | storage_reform if nu else []
+    risk_l, risk_day_l, age_l = risk.tolist(), risk_day.tolist(), age_day.tolist()
+    first_l, first_key_l = first.tolist(), first_key.tolist()
+    months_l = unpowered_months.tolist()
+    horizon, limit = f"{policy.horizon_days:g}", f"{policy.risk_limit:.0%}"
+    years = f"{policy.calendar_age_years:g}"
+    cache = {}
     out = []
     for u in range(nu):
+        if not says[u]:
+            out.append([])
+            continue
         items = []
-        if not np.isnan(risk_day[u]) and risk_day[u] <= horizon_end:
-            if risk_day[u] <= today_day:
-                text = (f"Chance of a capacitor fault within {policy.horizon_days:g} days is {risk[u]:.0%} now "
-                        f"(house limit {policy.risk_limit:.0%})")
+        if risk_says[u]:
+            when = risk_day_l[u]
+            if when <= today_day:
+                text = f"Chance of a capacitor fault within {horizon} days is {risk_l[u]:.0%} now (house limit {limit})"
             else:
-                text = (f"Chance of a capacitor fault within {policy.horizon_days:g} days reaches "
-                        f"{policy.risk_limit:.0%} {_when(risk_day[u], today_day)} (now {risk[u]:.0%})")
-            items.append((risk_day[u], text))
-        for i in first[u]:
-            if i >= 0 and np.isfinite(key[i]) and key[i] <= horizon_end:
-                items.append((key[i], _position_reason(fa, i, key[i], today_day, damage[i], threshold[i])))
-        if has_original[u] and age_day[u] <= horizon_end:
-            items.append((age_day[u], f"Original capacitors pass {policy.calendar_age_years:g} years of age "
-                                      f"{_when(age_day[u], today_day)}"))
+                text = (f"Chance of a capacitor fault within {horizon} days reaches {limit} "
+                        f"{_when(when, today_day)} (now {risk_l[u]:.0%})")
+            items.append((when, text))
+        for j in (0, 1):
+            if pos_says[u][j]:
+                i, when = first_l[u][j], first_key_l[u][j]
+                items.append((when, _position_reason(fa, cache, i, when, today_day, float(damage[i]),
+                                                     float(threshold[i]))))
+        if age_says[u]:
+            items.append((age_l[u], f"Original capacitors pass {years} years of age {_when(age_l[u], today_day)}"))
         items.sort(key=lambda x: x[0])
         words = [w for _, w in items]
-        if storage_reform[u]:
-            words.append(f"Unpowered for {unpowered_months[u]:.0f} months: reform the capacitors "
+        if reform[u]:
+            words.append(f"Unpowered for {months_l[u]:.0f} months: reform the capacitors "
                          "(bring the unit up slowly on a current-limited supply) before it goes out")
         out.append(words)
     return out

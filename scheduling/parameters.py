@@ -127,6 +127,27 @@ COUPLING_MAX_CORNER_HZ = 20.0
 #: (references.md "Open").
 WEIBULL_SHAPE = 3.0
 
+#: Spread of a unit's true damage around the prediction: standard deviation
+#: of the natural log of a multiplier shared by all the unit's positions.
+#: Our assumption (no source): 0.4 is a factor of about 1.5 either way, for
+#: what the records cannot tell (use before the unit joined the fleet is
+#: assumed, storage follows the location's profile, part batches differ).
+#: It is what lets "the unit works now" count as evidence (see
+#: ``physics.unit_conditional_hazard``); 0 gives the plain Weibull series system.
+FRAILTY_SIGMA = 0.4
+
+#: Largest log-sd of the hazard multiplier (Weibull shape x FRAILTY_SIGMA)
+#: the frailty integral is checked for.  numerical (scheduling/tests).
+FRAILTY_HAZARD_SIGMA_MAX = 3.0
+#: The frailty integral's trapezoid rule: half-width of the window around the
+#: integrand's peak (in standard deviations of ln Y) and its points; a table of
+#: ln H in [-30, 30] with this many points, read through a cubic spline.
+#: numerical: agrees with ``scipy.integrate.quad`` to about 1e-8 relative.
+FRAILTY_WINDOW = 12.0
+FRAILTY_GRID_POINTS = 1201
+FRAILTY_LN_HAZARD_MAX = 30.0
+FRAILTY_TABLE_POINTS = 601
+
 # --- Safety ----------------------------------------------------------------
 
 #: Voltage treated as safe to touch after discharge [V d.c.].  [V] SELV per

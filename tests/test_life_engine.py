@@ -194,14 +194,41 @@ def test_risk_lies_in_zero_one_and_rises_with_the_horizon(effects_model, attic):
     assert risks == sorted(risks) and risks[-1] > risks[0]
 
 
-def test_unit_risk_equals_the_product_rule_over_its_positions(effects_model, attic):
+def test_unit_risk_without_frailty_equals_the_product_rule_over_its_positions(effects_model, attic):
     make_unit(effects_model, attic)
     fa = load_fleet(today=TODAY)
     pol = Policy(horizon_days=365)
-    r = compute(fa, today=TODAY, policy=pol)
+    r = compute(fa, today=TODAY, policy=pol, options=EngineOptions(frailty_sigma=0.0))
     later = r.damage + r.rate_per_day * 365
     f = physics.conditional_failure_probability(r.damage, later, r.threshold, EngineOptions().weibull_shape)
     assert r.risk[0] == pytest.approx(physics.unit_failure_probability(f), rel=1e-9)
+
+
+def test_unit_risk_with_frailty_is_the_lognormal_mixture_of_the_product_rule(effects_model, attic):
+    """Every position's damage is Z times the prediction, ln Z ~ N(0, sigma):
+    the risk given the unit works now is E[S(later | Z)] / E[S(now | Z)],
+    here integrated with scipy.integrate.quad over scipy.stats.lognorm."""
+    from scipy import integrate, stats
+
+    make_unit(effects_model, attic)
+    fa = load_fleet(today=TODAY)
+    options = EngineOptions(frailty_sigma=0.4)
+    r = compute(fa, today=TODAY, policy=Policy(horizon_days=365), options=options)
+    later = r.damage + r.rate_per_day * 365
+    beta = options.weibull_shape
+
+    def survival(z, damage):
+        f = physics.failure_probability(z * damage, r.threshold, beta)
+        return 1.0 - physics.unit_failure_probability(f)
+
+    def mixture(damage):
+        return integrate.quad(lambda z: stats.lognorm.pdf(z, 0.4) * survival(z, damage), 0, np.inf,
+                              epsabs=0, epsrel=1e-11, limit=400)[0]
+
+    expected = 1.0 - mixture(later) / mixture(r.damage)
+    assert r.risk[0] == pytest.approx(expected, rel=1e-6)
+    plain = compute(fa, today=TODAY, policy=Policy(horizon_days=365), options=EngineOptions(frailty_sigma=0.0))
+    assert r.risk[0] != pytest.approx(plain.risk[0], rel=1e-3)  # the spread does change the answer
 
 
 def test_hot_attic_ages_a_unit_faster_than_the_cool_store(effects_model, attic, store):

@@ -10,6 +10,7 @@ import doctest
 import numpy as np
 import pytest
 import scipy.constants
+import scipy.special
 from numpy.testing import assert_allclose
 from scipy import integrate, stats
 
@@ -393,6 +394,59 @@ def test_reservoir_ripple_common_practice_peak_current():
                     rtol=1e-12)
 
 
+# --- the shared frailty (given that the unit works now) ----------------------
+
+def _lognormal_laplace_by_quad(hazard, sigma):
+    """ln E[exp(-Y H)], Y lognormal of median 1 and log-sd sigma, by
+    scipy.integrate.quad over scipy.stats.lognorm (small H without cancellation)."""
+    if hazard < 1.0:
+        lost = integrate.quad(lambda y: stats.lognorm.pdf(y, sigma) * -np.expm1(-hazard * y), 0, np.inf,
+                              epsabs=0, epsrel=1e-12, limit=1000)[0]
+        return np.log1p(-lost)
+    peak = -scipy.special.lambertw(hazard * sigma**2).real / sigma  # only where to look
+    top = -0.5 * peak**2 - hazard * np.exp(sigma * peak)
+    value = integrate.quad(lambda u: np.exp(-0.5 * u * u - hazard * np.exp(sigma * u) - top), peak - 15,
+                           peak + 15, points=[peak], epsabs=0, epsrel=1e-13, limit=1000)[0]
+    # In u = ln(Y)/sigma the lognormal density is the standard normal one.
+    assert stats.lognorm.pdf(2.0, sigma) * 2.0 * sigma == pytest.approx(stats.norm.pdf(np.log(2.0) / sigma))
+    return np.log(value / np.sqrt(2.0 * np.pi)) + top
+
+
+@pytest.mark.parametrize("sigma", [0.3, 1.2, 2.0, 3.0])
+def test_frailty_laplace_transform_matches_scipy_quad(sigma):
+    hazards = np.logspace(-12, 12, 25)
+    got = ph.frailty_log_laplace(hazards, sigma)
+    expected = [_lognormal_laplace_by_quad(h, sigma) for h in hazards]
+    assert_allclose(got, expected, rtol=1e-7)
+
+
+def test_frailty_laplace_transform_limits():
+    # sigma 0: no spread, survival exp(-H) exactly; tiny H: first order E[Y] H
+    # with E[Y] = exp(sigma**2/2) (the lognormal mean, scipy.stats.lognorm).
+    assert_allclose(ph.frailty_log_laplace([0.0, 0.5, 7.0], 0.0), [0.0, -0.5, -7.0], rtol=1e-15)
+    assert_allclose(ph.frailty_log_laplace(1e-20, 1.2), -stats.lognorm.mean(1.2) * 1e-20, rtol=1e-12)
+    assert ph.frailty_log_laplace(np.inf, 1.2) == -np.inf
+
+
+def test_conditional_hazard_without_spread_is_the_plain_difference():
+    # Weibull series system: survival ratio exp(-(H1 - H0)) (refs §5).
+    assert_allclose(ph.unit_conditional_hazard([0.0, 2.0], [1.0, 5.0], 3.0, 0.0), [1.0, 3.0], rtol=1e-14)
+    assert_allclose(ph.unit_conditional_risk(0.0, np.log(2.0), 3.0, 0.0), 0.5, rtol=1e-14)
+
+
+def test_surviving_far_past_the_prediction_keeps_the_conditional_risk_moderate():
+    # A unit whose nominal hazard is 1e4 (certain failure by the plain
+    # model) still works: with a spread its next-interval risk is modest,
+    # and it matches the ratio of two quadratures of the mixture (scipy).
+    h0, h1, beta, sz = 1.0e4, 1.02e4, 3.0, 0.4
+    plain = ph.unit_conditional_risk(h0, h1, beta, 0.0)
+    mixed = ph.unit_conditional_risk(h0, h1, beta, sz)
+    ref = -np.expm1(_lognormal_laplace_by_quad(h1, beta * sz) - _lognormal_laplace_by_quad(h0, beta * sz))
+    assert plain == pytest.approx(1.0)
+    assert mixed == pytest.approx(ref, rel=1e-6)
+    assert mixed < 0.1
+
+
 # --- refs §7: safety -------------------------------------------------------------
 
 def test_stored_energy_and_discharge_refs_s7():
@@ -503,6 +557,12 @@ def test_scalars_return_float_arrays_broadcast():
         (lambda: ph.failure_probability(0.5, 1.0, 0.0), "weibull_shape"),
         (lambda: ph.failure_probability(0.5, -1.0, 3.0), "damage_threshold"),
         (lambda: ph.unit_failure_probability([0.2, 1.2]), "position_probabilities"),
+        (lambda: ph.frailty_log_laplace(-1.0, 1.0), "hazard"),
+        (lambda: ph.frailty_log_laplace(1.0, -0.1), "hazard_sigma"),
+        (lambda: ph.frailty_log_laplace(1.0, 5.0), "hazard_sigma"),
+        (lambda: ph.unit_conditional_hazard(2.0, 1.0, 3.0, 0.4), "hazard_later"),
+        (lambda: ph.unit_conditional_hazard(1.0, 2.0, 3.0, np.nan), "frailty_sigma"),
+        (lambda: ph.unit_conditional_risk(1.0, 2.0, 0.0, 0.4), "weibull_shape"),
         (lambda: ph.threshold_pump(**PUMP, min_rail_v=0.0), "min_rail_v"),
         (lambda: ph.threshold_pump(**dict(PUMP, c_fly_f=0.0), min_rail_v=4.0), "c_fly_f"),
         (lambda: ph.threshold_coupling(10e3, 1e-6, -20.0), "max_corner_hz"),

@@ -74,3 +74,14 @@ def test_threshold_pump_rail_just_meets_minimum(min_rail, load, flying):
                                  ph.capacitance_at_damage(10e-6, d_res),
                                  ph.esr_at_damage(0.1, d_fly), ph.esr_at_damage(0.1, d_res), 46.0)
         np.testing.assert_allclose(-v, min_rail, rtol=1e-6)
+
+
+@settings(deadline=None)  # the first call for each spread builds its table
+@given(st.floats(0.0, 1e8), st.floats(0.0, 1e3), st.floats(0.0, 1e3), st.sampled_from([2.0, 3.0, 5.0]),
+       st.sampled_from([0.0, 0.2, 0.4, 0.6]))
+def test_conditional_unit_risk_lies_in_zero_one_and_rises_with_the_interval(h0, extra, more, beta, sigma):
+    # Shared frailty (physics.unit_conditional_hazard): a longer interval
+    # (more nominal hazard at its end) never lowers the risk.
+    r1 = ph.unit_conditional_risk(h0, h0 + extra, beta, sigma)
+    r2 = ph.unit_conditional_risk(h0, h0 + extra + more, beta, sigma)
+    assert 0.0 <= r1 <= r2 + 1e-12 <= 1.0 + 1e-12
