@@ -68,9 +68,9 @@ DUE_DATE_TOLERANCE_DAYS = 0.5
 RISK_LOOKAHEAD_DAYS = (90.0, 365.0, 1095.0, 3652.0, 10957.0)
 DUE_DATE_BISECTIONS = 3
 DUE_DATE_MAX_STEPS = 40
-#: Bisection steps for the pump pair's failure time: (100 years) / 2**36 is
-#: about 0.05 s, far below a day.
-PUMP_ITERATIONS = 36
+#: Tolerance of the pump pair's failure time [days] (numerical): about 1 s,
+#: so that the thresholds reproduce the minimum rail to better than 1e-6.
+PUMP_TOLERANCE_DAYS = 1e-5
 #: Chunk of capacitors for the Arrhenius histogram path (memory bound).
 CHUNK = 20_000
 
@@ -432,8 +432,17 @@ def compute(fa, *, today, policy=None, options=None):
         share = np.divide(damage, threshold, out=np.full(nc, 1e6), where=threshold > 0)
         np.maximum.at(ratio, ui, share)
 
+    # Which positions carry most of each unit's risk over the next horizon:
+    # their share of the summed nominal hazard (the frailty scales all alike).
+    drivers = np.full((nu, 2), -1, dtype=np.int64)
+    if nc:
+        x_then = x_now + x_rate * policy.horizon_days
+        share = np.where(failed, np.inf, physics.cumulative_hazard(x_then, 1.0, beta)
+                         - physics.cumulative_hazard(x_now, 1.0, beta))
+        drivers = _first_per_unit(ui, -share, nu, k=2)
+        drivers[(drivers >= 0) & ~(share[np.maximum(drivers, 0)] > 0)] = -1
     reasons = _reasons(fa, policy, today_day, damage, threshold, reaches, risk, risk_day, age_day, has_original,
-                       storage_reform, unpowered_months)
+                       storage_reform, unpowered_months, drivers)
     return FleetForecast(today_day=today_day, damage=damage, esr_ohm=esr, capacitance_f=cap, threshold=threshold,
                          rate_per_day=rate, reaches_day=reaches, risk=risk, due_day=due_day, status=status,
                          storage_reform=storage_reform, max_damage_ratio=ratio, reasons=reasons)
@@ -627,27 +636,31 @@ def _pump_thresholds(fa, damage, rate, threshold, role):
         return
     rsw = np.nan_to_num(rsw)
 
-    def margin(t):
-        d_f = np.maximum(damage[fly] + rate[fly] * t, 0.0)
-        d_r = np.maximum(damage[res] + rate[res] * t, 0.0)
+    def margin_of(units, t):
+        a, b = fly[units], res[units]
+        d_f = np.maximum(damage[a] + rate[a] * t, 0.0)
+        d_r = np.maximum(damage[b] + rate[b] * t, 0.0)
         v = physics.inverter_output_v(
-            vin, load, f, physics.capacitance_at_damage(fa.capacitance_f[fly], d_f),
-            physics.capacitance_at_damage(fa.capacitance_f[res], d_r),
-            physics.esr_at_damage(fa.esr0_ohm[fly], d_f), physics.esr_at_damage(fa.esr0_ohm[res], d_r), rsw)
-        return -v - vmin  # >= 0 while the rail is deep enough
+            vin[units], load[units], f[units], physics.capacitance_at_damage(fa.capacitance_f[a], d_f),
+            physics.capacitance_at_damage(fa.capacitance_f[b], d_r),
+            physics.esr_at_damage(fa.esr0_ohm[a], d_f), physics.esr_at_damage(fa.esr0_ohm[b], d_r), rsw[units])
+        return -v - vmin[units]  # >= 0 while the rail is deep enough
 
     with np.errstate(divide="ignore", invalid="ignore"):
         back = np.minimum(np.where(rate[fly] > 0, damage[fly] / rate[fly], 0.0),
                           np.where(rate[res] > 0, damage[res] / rate[res], 0.0))
+    every = np.arange(fly.size)
     lo = -back                                   # the younger part is new here
     hi = np.full(fly.size, SEARCH_FUTURE_DAYS)
-    fails_new = margin(lo) < 0
-    never = margin(hi) >= 0
-    for _ in range(PUMP_ITERATIONS):
-        mid = 0.5 * (lo + hi)
-        bad = margin(mid) < 0
-        hi = np.where(bad, mid, hi)
-        lo = np.where(bad, lo, mid)
+    m_lo, m_hi = margin_of(every, lo), margin_of(every, hi)
+    fails_new = m_lo < 0
+    never = m_hi >= 0
+    solve = np.flatnonzero(~fails_new & ~never)
+    if solve.size:
+        # The rail's shortfall (-margin) rises through 0 at the failure time.
+        hi[solve] = _first_crossing(
+            lambda units, t: -margin_of(solve[units], t), lo[solve], hi[solve], -m_lo[solve], -m_hi[solve], 0.0,
+            tol_days=PUMP_TOLERANCE_DAYS)
     t_fail = np.where(fails_new, -back, hi)
     for rows in (fly, res):
         at_fail = np.maximum(damage[rows] + rate[rows] * t_fail, 0.0)
@@ -669,6 +682,14 @@ def _month(day):
 def _when(day, today_day):
     month = _month(int(np.floor(day)))
     return f"since about {month}" if day < today_day else f"by {month}"
+
+
+def _position_name(fa, cache, i):
+    """``C12 (supply reservoir)`` for capacitor row i."""
+    pos = int(fa.position_index[i])
+    if pos not in cache:
+        cache[pos] = f"{fa.pos_designator[pos]} ({ROLE_WORDS[ROLE_NAMES[int(fa.pos_role[pos])]]})"
+    return cache[pos]
 
 
 def _position_reason(fa, cache, i, reach_day, today_day, damage, threshold):
@@ -708,7 +729,7 @@ def _position_reason_template(fa, pos, reach_day, today_day, threshold_is_zero):
 
 
 def _reasons(fa, policy, today_day, damage, threshold, reaches, risk, risk_day, age_day, has_original,
-             storage_reform, unpowered_months):
+             storage_reform, unpowered_months, drivers):
     nu = fa.n_units
     key = np.where(np.isnan(reaches), np.inf, reaches)
     first = _first_per_unit(fa.unit_index, key, nu, k=2) if fa.n_caps else np.full((nu, 2), -1)
@@ -723,6 +744,7 @@ def _reasons(fa, policy, today_day, damage, threshold, reaches, risk, risk_day, 
     says = np.array(risk_says) | np.any(pos_says, axis=1) | np.array(age_says) | storage_reform if nu else []
     risk_l, risk_day_l, age_l = risk.tolist(), risk_day.tolist(), age_day.tolist()
     first_l, first_key_l = first.tolist(), first_key.tolist()
+    drivers_l, names_cache = drivers.tolist(), {}
     months_l = unpowered_months.tolist()
     horizon, limit = f"{policy.horizon_days:g}", f"{policy.risk_limit:.0%}"
     years = f"{policy.calendar_age_years:g}"
@@ -740,6 +762,9 @@ def _reasons(fa, policy, today_day, damage, threshold, reaches, risk, risk_day, 
             else:
                 text = (f"Chance of a capacitor fault within {horizon} days reaches {limit} "
                         f"{_when(when, today_day)} (now {risk_l[u]:.0%})")
+            names = [_position_name(fa, names_cache, i) for i in drivers_l[u] if i >= 0]
+            if names:
+                text += ", mostly from " + " and ".join(names)
             items.append((when, text))
         for j in (0, 1):
             if pos_says[u][j]:
