@@ -410,18 +410,11 @@ def compute(fa, *, today, policy=None, options=None):
 
     due_day = np.fmin(np.fmin(risk_day, pos_day), age_day)
 
-    status = []
-    for d in due_day:
-        if np.isnan(d):
-            status.append(STATUS_OK)
-        elif d < today_day:
-            status.append(STATUS_OVERDUE)
-        elif d <= today_day + policy.horizon_days:
-            status.append(STATUS_DUE)
-        elif d <= today_day + policy.watch_days:
-            status.append(STATUS_WATCH)
-        else:
-            status.append(STATUS_OK)
+    with np.errstate(invalid="ignore"):  # NaN (nothing due) compares False: ok
+        status = np.select(
+            [due_day < today_day, due_day <= today_day + policy.horizon_days,
+             due_day <= today_day + policy.watch_days],
+            [STATUS_OVERDUE, STATUS_DUE, STATUS_WATCH], STATUS_OK).tolist()
 
     last_on = np.where(np.isnan(fa.last_powered_day), fa.joined_day, fa.last_powered_day)
     unpowered_months = (today_day - last_on) / (DAYS_PER_YEAR / 12)

@@ -7,6 +7,7 @@ million model instances or tuples.  Everything else is small.
 """
 
 import datetime as dt
+import itertools
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -131,8 +132,9 @@ def _capacitor_sql(unit_filter_sql):
 def read_capacitors(unit_ids=None, bare=False):
     """Read the unit capacitor rows in chunks into one structured array.
 
-    Each chunk goes from the cursor straight into numpy (``np.fromiter`` of
-    the row tuples), so memory is the array plus one chunk of tuples.
+    The chunks go from the cursor straight into one numpy array
+    (``np.fromiter`` over the row tuples), so memory is the array plus one
+    chunk of tuples.
     ``bare=True`` only fetches the rows (the benchmark's floor) and returns
     their number.
     """
@@ -141,20 +143,14 @@ def read_capacitors(unit_ids=None, bare=False):
     if unit_ids is not None:
         ids_sql = ", ".join(["%s"] * len(unit_ids)) or "NULL"
         params = list(unit_ids)
-    chunks = []
-    count = 0
     with connection.cursor() as cursor:
         cursor.execute(_capacitor_sql(ids_sql), params)
-        while True:
-            rows = cursor.fetchmany(CHUNK_ROWS)
-            if not rows:
-                break
-            count += len(rows)
-            if not bare:
-                chunks.append(np.fromiter(rows, dtype=CAPACITOR_ROW, count=len(rows)))
-    if bare:
-        return count
-    arr = np.concatenate(chunks) if chunks else np.zeros(0, dtype=CAPACITOR_ROW)
+        chunks = iter(lambda: cursor.fetchmany(CHUNK_ROWS), [])
+        if bare:
+            return sum(len(rows) for rows in chunks)
+        # One array filled straight from the chunks as they arrive (numpy grows
+        # it); only one chunk of row tuples exists at a time.
+        arr = np.fromiter(itertools.chain.from_iterable(chunks), dtype=CAPACITOR_ROW)
     out = {name: np.ascontiguousarray(arr[name]) for name in CAPACITOR_ROW.names}
     for name in ("esr_ohm", "tan_delta"):
         out[name] = np.where(out[name] < 0, np.nan, out[name])

@@ -91,9 +91,12 @@ GENERAL_DAMAGE_THRESHOLD = 1.0
 #: reported as ``inf`` ("never within the drift model").
 DAMAGE_MAX = 20.0
 
-#: Fixed number of bisection steps on [0, DAMAGE_MAX].  numerical: the bracket
-#: shrinks to 20 / 2**44 (about 1e-12), far below any meaningful damage.
-BISECTION_ITERATIONS = 44
+#: Most steps of the threshold root search on [0, DAMAGE_MAX], and the width
+#: of the damage bracket at which it stops.  numerical: 44 halvings alone
+#: would reach 20 / 2**44 (about 1e-12); the regula falsi steps get there in
+#: about a dozen.
+BISECTION_ITERATIONS = 60
+ROOT_TOLERANCE_DAMAGE = 1e-12
 
 #: Fixed RK4 steps over one constant-ambient interval in
 #: ``damage_with_esr_feedback``.  numerical: agrees with

@@ -7,6 +7,7 @@ it twice leaves the same rows.
 """
 
 import json
+import time
 
 import numpy as np
 from django.db import DEFAULT_DB_ALIAS, connection, connections, transaction
@@ -144,13 +145,14 @@ def _store(run):
     updates = ", ".join(f"{qn(c)} = excluded.{qn(c)}" for c in columns[1:])
     conflict = f"ON CONFLICT ({qn('unit_id')}) DO UPDATE SET {updates}"
     insert = f"INSERT INTO {table} ({', '.join(qn(c) for c in columns)}) "
-    with transaction.atomic(), connection.cursor() as cursor:
+    with transaction.atomic(savepoint=False), connection.cursor() as cursor:
         if connection.vendor == "postgresql":
             # Server-side binding with binary parameters: the arrays travel as
             # they are, not quoted into the SQL text.
             import psycopg
 
             raw = psycopg.Cursor(connection.connection)
+            started = time.monotonic()
             raw.execute(
                 insert + "SELECT u, %b, s, d, r, %b::integer, m, f, j::jsonb, p FROM unnest("
                 "%b::bigint[], %b::text[], %b::date[], %b::float8[], %b::float8[], %b::bool[], %b::text[], "
@@ -158,6 +160,9 @@ def _store(run):
                 [now, horizon, unit_ids, list(r.status), due, risk, ratio, reform, reasons, positions],
             )
             raw.close()
+            if connection.queries_logged:  # a raw cursor: log it as Django's own cursors do
+                connection.queries_log.append({"sql": f"INSERT INTO {table} ... unnest (one statement)",
+                                               "time": f"{time.monotonic() - started:.3f}"})
         else:
             conn = connections[DEFAULT_DB_ALIAS]
             computed_at = UnitForecast._meta.get_field("computed_at").get_db_prep_save(now, conn)
@@ -177,7 +182,9 @@ def forecast_refresh(*, unit_ids=None, today=None, **options):
     not forecast and their old results are removed.  Returns the ForecastRun.
     """
     run = forecast_compute(unit_ids=unit_ids, today=today, **options)
-    with transaction.atomic():
+    # No savepoint: inside a caller's transaction (check-in) a failure here
+    # fails the whole of it, and it saves two round trips per refresh.
+    with transaction.atomic(savepoint=False):
         _store(run)
         # Units asked for but not forecast are retired (or gone): drop their old results.
         if unit_ids is None:
