@@ -717,7 +717,7 @@ def _position_reason_template(fa, pos, reach_day, today_day, threshold_is_zero):
     if reach_day < today_day:
         what = what.replace("would rise", "has already risen").replace("would exceed", "already exceeds").replace(
             "would sag", "already sags").replace("reaches", "past")
-        return f"{des} {ROLE_WORDS[role]}: {what} (damage {{damage:.1f}} against a threshold of {{threshold:.2f}})"
+        return f"{des} {ROLE_WORDS[role]}: {what}; damage {{damage:.1f}} against a limit of {{threshold:.2f}}"
     return f"{des} {ROLE_WORDS[role]}: {what} {_when(reach_day, today_day)}"
 
 

@@ -29,7 +29,7 @@ POSITION_DTYPE = np.dtype([
 ])
 
 
-def _options_from(law=None, activation_energy_ev=None, esr_feedback=False, weibull_shape=None):
+def _options_from(law=None, activation_energy_ev=None, esr_feedback=False, weibull_shape=None, frailty_sigma=None):
     kw = {"esr_feedback": esr_feedback}
     if law:
         kw["law"] = law
@@ -37,6 +37,8 @@ def _options_from(law=None, activation_energy_ev=None, esr_feedback=False, weibu
         kw["activation_energy_ev"] = activation_energy_ev
     if weibull_shape is not None:
         kw["weibull_shape"] = weibull_shape
+    if frailty_sigma is not None:
+        kw["frailty_sigma"] = frailty_sigma
     return EngineOptions(**kw)
 
 
@@ -92,10 +94,10 @@ class ForecastRun:
 
 
 def forecast_compute(*, unit_ids=None, today=None, law=None, activation_energy_ev=None, esr_feedback=False,
-                     weibull_shape=None, policy=None):
+                     weibull_shape=None, frailty_sigma=None, policy=None):
     """Compute forecasts without storing them; returns a ForecastRun."""
     today = today or timezone.localdate()
-    options = _options_from(law, activation_energy_ev, esr_feedback, weibull_shape)
+    options = _options_from(law, activation_energy_ev, esr_feedback, weibull_shape, frailty_sigma)
     policy_row = policy or active_policy()
     fleet = load_fleet(unit_ids=unit_ids, today=today, min_history_days=options.min_history_days)
     pol = Policy.from_model(policy_row)

@@ -319,6 +319,19 @@ def test_forecast_command_prints_json_per_unit(effects_model, store):
                                             "damage_threshold", "reaches_threshold_on"}
 
 
+def test_forecast_command_passes_the_scatter_options_to_the_engine(effects_model, attic):
+    make_unit(effects_model, attic, tag="T-S")
+
+    def risk(*args):
+        out = StringIO()
+        call_command("forecast", "--json", "--today", "2026-12-01", *args, stdout=out)
+        return json.loads(out.getvalue())[0]["risk"]
+
+    plain = risk("--frailty-sigma", "0")
+    assert plain != pytest.approx(risk(), rel=1e-3)
+    assert plain != pytest.approx(risk("--frailty-sigma", "0", "--weibull-shape", "5"), rel=1e-3)
+
+
 def test_due_list_orders_most_urgent_first_and_writes_csv(effects_model, store, attic):
     make_unit(effects_model, attic, tag="T-OLD", year=1985)
     make_unit(effects_model, store, tag="T-NEW", year=2018)
@@ -337,6 +350,9 @@ def test_due_list_orders_most_urgent_first_and_writes_csv(effects_model, store, 
     (["--today", "yesterday"], "--today must be a date"),
     (["--law", "arrhenius"], "needs --activation-energy"),
     (["--activation-energy", "0.7"], "only applies with --law arrhenius"),
+    (["--weibull-shape", "0"], "--weibull-shape must be above zero"),
+    (["--frailty-sigma", "-0.1"], "--frailty-sigma must be zero or above"),
+    (["--weibull-shape", "8", "--frailty-sigma", "0.5"], "must not exceed 3"),
 ])
 def test_forecast_command_rejects_bad_arguments(db, args, message):
     with pytest.raises(CommandError, match=message):
