@@ -255,3 +255,69 @@ class DemoSetupCommandTests(TestCase):
         desk.save()
         run_demo_setup()
         self.assertTrue(self.client.login(username="desk", password=DEMO_USERS[0][1]))
+
+
+class DemoForecastTests(TestCase):
+    """What a technician should read in the demo fleet's forecast.  These check
+    the scenario's story, not physics numbers (those are in scheduling/tests)."""
+
+    @classmethod
+    def setUpTestData(cls):
+        from scheduling.services import forecast_compute
+
+        build_demo_fleet(today=TODAY)
+        cls.forecast = forecast_compute(today=TODAY)
+        cls.units = {tag: u for u, tag in enumerate(cls.forecast.fleet.asset_tag)}
+
+    def unit(self, tag):
+        return self.forecast.unit_dict(self.units[tag])
+
+    def test_the_list_spreads_over_the_statuses(self):
+        statuses = set(self.forecast.result.status)
+        self.assertIn("overdue", statuses)
+        self.assertIn("ok", statuses)
+        self.assertLess(self.forecast.result.status.count("overdue"), len(self.forecast.result.status))
+
+    def test_no_unit_is_called_certain_to_fail_while_it_works(self):
+        # Given that it works now, no unit's 90-day risk is near certainty.
+        self.assertLess(max(self.forecast.result.risk), 0.6)
+
+    def test_an_effects_units_pump_pair_stands_out_first(self):
+        # On the effects units whose pump parts are as old as the rest, the pump
+        # pair is the first position named in the reasons (the units whose pump
+        # was changed on its own later are left out).
+        fa = self.forecast.fleet
+        named_first = []
+        for unit in Unit.objects.filter(gear_model__model_name__startswith="Spectrelle"):
+            if unit.asset_tag not in self.units:
+                continue
+            rows = self.forecast.rows_of(self.units[unit.asset_tag])
+            pump = [i for i in rows if fa.pos_designator[fa.position_index[i]] == "C4"][0]
+            if fa.installed_day[pump] > fa.installed_day[rows].min():
+                continue
+            d = self.unit(unit.asset_tag)
+            positions = [r for r in d["reasons"] if re.match(r"C\d+ ", r)]
+            if positions:  # due soon or past: the words name the pump first
+                named_first.append(positions[0].split(" ")[1])
+            # Either way the pump pair is the first to reach its limit.
+            first = min(d["positions"], key=lambda p: p["reaches_threshold_on"] or "9999")
+            self.assertIn(first["role"], ("pump_flying", "pump_reservoir"), unit.asset_tag)
+        self.assertTrue(named_first)
+        self.assertEqual(set(named_first), {"pump"})
+
+    def test_valve_amp_parts_age_faster_in_the_hot_attic(self):
+        # Same position, same kind of part, different store: the attic's rate
+        # of damage is the higher one.
+        fa, r = self.forecast.fleet, self.forecast.result
+        amps = Unit.objects.filter(gear_model__model_name__startswith="Emberline").select_related("home_location")
+        rates = {"Attic store": [], "Basement store": []}
+        for unit in amps:
+            if unit.asset_tag not in self.units or unit.home_location.name not in rates:
+                continue
+            rows = self.forecast.rows_of(self.units[unit.asset_tag])
+            first = [i for i in rows if fa.pos_designator[fa.position_index[i]] == "C1"]
+            part = (fa.rated_temp_c[first[0]], fa.rated_life_h[first[0]])
+            rates[unit.home_location.name].append((part, r.rate_per_day[first[0]]))
+        pairs = [(a, b) for pa, a in rates["Attic store"] for pb, b in rates["Basement store"] if pa == pb]
+        self.assertTrue(pairs, "the scenario needs an amp of the same filter part in each store")
+        self.assertTrue(all(a > b for a, b in pairs))
