@@ -677,22 +677,28 @@ def _when(day, today_day):
     return f"since about {month}" if day < today_day else f"by {month}"
 
 
-def _position_name(fa, cache, i):
-    """``C12 (supply reservoir)`` for capacitor row i."""
-    pos = int(fa.position_index[i])
+def _months(days):
+    """``YYYY-MM`` of each of ``days`` (float days since 1970-01-01; NaN and
+    infinities give ``''``), in one array step."""
+    days = np.asarray(days, dtype=float)
+    ok = np.isfinite(days)
+    out = np.floor(np.where(ok, days, 0.0)).astype("int64").astype("datetime64[D]").astype("datetime64[M]")
+    return np.where(ok, out.astype(str), "").tolist()
+
+
+def _position_name(fa, cache, pos):
+    """``C12 (supply reservoir)`` for position ``pos``."""
     if pos not in cache:
         cache[pos] = f"{fa.pos_designator[pos]} ({ROLE_WORDS[ROLE_NAMES[int(fa.pos_role[pos])]]})"
     return cache[pos]
 
 
-def _position_reason(fa, cache, i, reach_day, today_day, damage, threshold):
-    """Words for capacitor row i.  The wording is kept in ``cache`` (one per
-    forecast run) per (position, month, crossed?) as a template, since the
-    units of one gear model share their positions' words; only the damage
-    figures differ between units."""
-    past = reach_day < today_day
-    pos = int(fa.position_index[i])
-    key = (pos, None if past else _month(int(np.floor(reach_day))), threshold <= 0)
+def _position_reason(fa, cache, pos, past, month, reach_day, today_day, damage, threshold):
+    """Words for a capacitor at position ``pos``.  The wording is kept in
+    ``cache`` (one per forecast run) per (position, month, crossed?) as a
+    template, since the units of one gear model share their positions' words;
+    only the damage figures differ between units."""
+    key = (pos, None if past else month, threshold <= 0)
     template = cache.get(key)
     if template is None:
         template = cache[key] = _position_reason_template(fa, pos, reach_day, today_day, threshold <= 0)
@@ -727,21 +733,28 @@ def _reasons(fa, policy, today_day, damage, threshold, reaches, risk, risk_day, 
     key = np.where(np.isnan(reaches), np.inf, reaches)
     first = _first_per_unit(fa.unit_index, key, nu, k=2) if fa.n_caps else np.full((nu, 2), -1)
     horizon_end = today_day + max(policy.watch_days, policy.horizon_days)
-    # Which units say anything at all, decided on whole arrays; the loop below
-    # only writes the words.  Plain lists: no numpy scalars in the loop.
-    risk_says = (risk_day <= horizon_end).tolist()  # NaN compares False
-    first_key = np.where(first >= 0, key[np.maximum(first, 0)], np.inf)
-    pos_says = (np.isfinite(first_key) & (first_key <= horizon_end)).tolist()
-    age_says = (has_original & (age_day <= horizon_end)).tolist()
+    # Which units say anything at all, and every figure the words need, are
+    # found on whole arrays; the loop below only puts the words together.
+    # Plain lists: no numpy scalars in the loop.
+    taken = np.maximum(first, 0)
+    first_key = np.where(first >= 0, key[taken], np.inf)
+    pos_says_a = np.isfinite(first_key) & (first_key <= horizon_end)
+    risk_says_a = risk_day <= horizon_end  # NaN compares False
+    age_says_a = has_original & (age_day <= horizon_end)
+    says = (risk_says_a | pos_says_a.any(axis=1) | age_says_a | storage_reform).tolist() if nu else []
+    risk_says, pos_says, age_says = risk_says_a.tolist(), pos_says_a.tolist(), age_says_a.tolist()
     reform = storage_reform.tolist()
-    says = np.array(risk_says) | np.any(pos_says, axis=1) | np.array(age_says) | storage_reform if nu else []
     risk_l, risk_day_l, age_l = risk.tolist(), risk_day.tolist(), age_day.tolist()
-    first_l, first_key_l = first.tolist(), first_key.tolist()
-    drivers_l, names_cache = drivers.tolist(), {}
+    first_key_l = first_key.tolist()
+    first_pos = (fa.position_index[taken] if fa.n_caps else taken).tolist()
+    first_damage, first_threshold = (damage[taken].tolist(), threshold[taken].tolist()) if fa.n_caps else ([], [])
+    first_month = _months(first_key.reshape(-1))
+    risk_month, age_month = _months(risk_day), _months(age_day)
+    driver_pos = np.where(drivers >= 0, fa.position_index[np.maximum(drivers, 0)] if fa.n_caps else -1, -1).tolist()
     months_l = unpowered_months.tolist()
     horizon, limit = f"{policy.horizon_days:g}", f"{policy.risk_limit:.0%}"
     years = f"{policy.calendar_age_years:g}"
-    cache = {}
+    cache, names_cache = {}, {}
     out = []
     for u in range(nu):
         if not says[u]:
@@ -753,20 +766,24 @@ def _reasons(fa, policy, today_day, damage, threshold, reaches, risk, risk_day, 
             if when <= today_day:
                 text = f"Chance of a capacitor fault within {horizon} days is {risk_l[u]:.0%} now (house limit {limit})"
             else:
-                text = (f"Chance of a capacitor fault within {horizon} days reaches {limit} "
-                        f"{_when(when, today_day)} (now {risk_l[u]:.0%})")
-            names = [_position_name(fa, names_cache, i) for i in drivers_l[u] if i >= 0]
+                text = (f"Chance of a capacitor fault within {horizon} days reaches {limit} by {risk_month[u]} "
+                        f"(now {risk_l[u]:.0%})")
+            names = [_position_name(fa, names_cache, pos) for pos in driver_pos[u] if pos >= 0]
             if names:
                 text += ", mostly from " + " and ".join(names)
             items.append((when, text))
         for j in (0, 1):
             if pos_says[u][j]:
-                i, when = first_l[u][j], first_key_l[u][j]
-                items.append((when, _position_reason(fa, cache, i, when, today_day, float(damage[i]),
-                                                     float(threshold[i]))))
+                when = first_key_l[u][j]
+                items.append((when, _position_reason(fa, cache, first_pos[u][j], when < today_day,
+                                                     first_month[2 * u + j], when, today_day,
+                                                     first_damage[u][j], first_threshold[u][j])))
         if age_says[u]:
-            items.append((age_l[u], f"Original capacitors pass {years} years of age {_when(age_l[u], today_day)}"))
-        items.sort(key=lambda x: x[0])
+            when = age_l[u]
+            items.append((when, f"Original capacitors pass {years} years of age "
+                                f"{'since about' if when < today_day else 'by'} {age_month[u]}"))
+        if len(items) > 1:
+            items.sort(key=lambda x: x[0])
         words = [w for _, w in items]
         if reform[u]:
             words.append(f"Unpowered for {months_l[u]:.0f} months: reform the capacitors "
