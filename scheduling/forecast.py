@@ -249,6 +249,28 @@ def projected_use(fa):
     return p, o, a
 
 
+def _unpowered_per_year(fa, out_unpowered_h, venue_c, store_frac, opts, factorise=True):
+    """Damage per year [1/year] from unpowered time, per capacitor: hours out on
+    hire but off (at the venue ambient) and storage at the home location's
+    monthly temperatures (``store_frac`` of each month).
+
+    With the 10 K rule the sum over a unit's temperatures factorises exactly,
+    ``sum_k h_k / L(T_k) = (sum_k h_k 2**(T_k/10)) / L(0 degC)``, so it is
+    taken per unit and then scaled per part; otherwise (or with
+    ``factorise=False``) it is summed per part and month.
+    """
+    ui, L0, T0 = fa.unit_index, fa.rated_life_h, fa.rated_temp_c
+    store_weights = MONTH_HOURS[None, :] * store_frac[:, None]    # (units, 12) hours per year
+    if opts.law == "10k" and factorise:
+        per_unit = (out_unpowered_h / physics.life_hours_10k(1.0, 0.0, venue_c)
+                    + (store_weights / physics.life_hours_10k(1.0, 0.0, fa.monthly_store_c)).sum(axis=1))
+        return per_unit[ui] / physics.life_hours_10k(L0, T0, 0.0)
+    per_year = out_unpowered_h[ui] * _inverse_life(L0, T0, venue_c[ui], opts)
+    for m in range(12):
+        per_year += store_weights[ui, m] * _inverse_life(L0, T0, fa.monthly_store_c[ui, m], opts)
+    return per_year
+
+
 def _first_per_unit(unit_index, key, n_units, k=1):
     """Capacitor row indices of the ``k`` smallest ``key`` per unit (-1 where none);
     ties go to the earlier row."""
@@ -314,13 +336,8 @@ def compute(fa, *, today, policy=None, options=None):
         esr_now_for_rate = physics.esr_at_damage(fa.esr0_ohm, d_hist)
     rise_now = physics.ripple_rise_k(ripple_a, esr_now_for_rate, fa.diameter_mm, fa.length_mm)
     L0, T0 = fa.rated_life_h, fa.rated_temp_c
-    per_year = (
-        p_h[ui] * _inverse_life(L0, T0, amb_c[ui] + rise_int[ui] + rise_now, opts)
-        + (o_h - p_h)[ui] * _inverse_life(L0, T0, amb_c[ui], opts)
-    )
-    store_weights = MONTH_HOURS[None, :] * store_frac[:, None]    # (units, 12) hours per year
-    for m in range(12):
-        per_year += store_weights[ui, m] * _inverse_life(L0, T0, fa.monthly_store_c[ui, m], opts)
+    per_year = p_h[ui] * _inverse_life(L0, T0, amb_c[ui] + rise_int[ui] + rise_now, opts)
+    per_year += _unpowered_per_year(fa, (o_h - p_h), amb_c, store_frac, opts)
     rate = per_year / DAYS_PER_YEAR
 
     # 2. use since the last count, projected

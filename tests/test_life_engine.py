@@ -418,3 +418,20 @@ def test_recent_use_counts_hours_out_from_the_hire_times(effects_model, store):
     powered, out, ambient = recent_use([unit.pk], TODAY)[unit.pk]
     assert (powered, ambient) == (20.0, 30.0)
     assert out == pytest.approx(72.0, abs=1e-6)
+
+
+def test_ten_kelvin_fast_path_for_unpowered_rates_equals_the_plain_sum(effects_model, attic, store):
+    """The per-unit factorisation of the 10 K rule for storage and hire-off time
+    gives the same rate as the month-by-month, part-by-part sum."""
+    from scheduling.forecast import _unpowered_per_year, projected_use
+
+    make_unit(effects_model, attic, tag="T-A")
+    make_unit(effects_model, store, tag="T-B", year=1990)
+    fa = load_fleet(today=TODAY)
+    p, o, a = projected_use(fa)
+    frac = np.maximum(1.0 - o / 8766.0, 0.0)
+    opts = EngineOptions()
+    fast = _unpowered_per_year(fa, o - p, a, frac, opts)
+    plain = _unpowered_per_year(fa, o - p, a, frac, opts, factorise=False)
+    assert np.all(plain > 0)
+    np.testing.assert_allclose(fast, plain, rtol=1e-12)
