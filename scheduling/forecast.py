@@ -271,6 +271,22 @@ def _unpowered_per_year(fa, out_unpowered_h, venue_c, store_frac, opts, factoris
     return per_year
 
 
+def _per_unit(ufunc, unit_index, values, n_units, empty):
+    """``ufunc`` (np.minimum or np.maximum) of ``values`` over each unit's rows,
+    with ``empty`` folded in (and given to units without rows).  Rows grouped
+    by unit (as the loader reads them) take one ``reduceat``; otherwise ``at``."""
+    out = np.full(n_units, empty, dtype=float)
+    if not unit_index.size:
+        return out
+    if np.any(unit_index[1:] < unit_index[:-1]):
+        ufunc.at(out, unit_index, values)
+        return out
+    starts = np.searchsorted(unit_index, np.arange(n_units), side="left")
+    has = starts < np.searchsorted(unit_index, np.arange(n_units), side="right")
+    out[has] = ufunc(ufunc.reduceat(values, starts[has]), empty)
+    return out
+
+
 def _first_per_unit(unit_index, key, n_units, k=1):
     """Capacitor row indices of the ``k`` smallest ``key`` per unit (-1 where none);
     ties go to the earlier row."""
@@ -411,8 +427,7 @@ def compute(fa, *, today, policy=None, options=None):
     pos_day = np.full(nu, np.nan)
     if nc:
         key = np.where(np.isnan(reaches), np.inf, reaches)
-        earliest = np.full(nu, np.inf)
-        np.minimum.at(earliest, ui, key)
+        earliest = _per_unit(np.minimum, ui, key, nu, np.inf)
         pos_day = np.where(np.isfinite(earliest), earliest, np.nan)
     has_original = np.zeros(nu, dtype=bool)
     if nc:
@@ -422,7 +437,7 @@ def compute(fa, *, today, policy=None, options=None):
 
     risk_at = risk_function(np.arange(nc), ui, nu)
     risk = risk_at(np.zeros(nu)) if nc else np.zeros(nu)
-    risk_day = _risk_crossing_day(risk_function, risk_at, risk, fa, today_day, policy, other_day) \
+    risk_day = _risk_crossing_day(risk_function, risk_at, risk, fa, today_day, policy, other_day, failed) \
         if nc else np.full(nu, np.nan)
 
     due_day = np.fmin(np.fmin(risk_day, pos_day), age_day)
@@ -440,7 +455,7 @@ def compute(fa, *, today, policy=None, options=None):
     ratio = np.zeros(nu)
     if nc:
         share = np.divide(damage, threshold, out=np.full(nc, 1e6), where=threshold > 0)
-        np.maximum.at(ratio, ui, share)
+        ratio = _per_unit(np.maximum, ui, share, nu, 0.0)
 
     # Which positions carry most of each unit's risk over the next horizon:
     # their share of the summed nominal hazard (the frailty scales all alike).
@@ -458,7 +473,7 @@ def compute(fa, *, today, policy=None, options=None):
                          storage_reform=storage_reform, max_damage_ratio=ratio, reasons=reasons)
 
 
-def _risk_crossing_day(risk_function, risk_at, risk_now, fa, today_day, policy, other_day):
+def _risk_crossing_day(risk_function, risk_at, risk_now, fa, today_day, policy, other_day, threshold_failed):
     """Day the unit's risk over the horizon reaches the policy limit, where it
     matters: before ``other_day`` (the earliest other due date) for the due
     date, or within the watch window for the reasons.
@@ -471,12 +486,11 @@ def _risk_crossing_day(risk_function, risk_at, risk_now, fa, today_day, policy, 
     """
     nu, ui = fa.n_units, fa.unit_index
     limit = policy.risk_limit
-    # Before its oldest part went in every x is 0: the risk is 0 there,
-    # unless a part fails its requirement even when new (risk 1 always).
-    oldest = np.full(nu, today_day)
-    np.minimum.at(oldest, ui, fa.installed_day)
+    oldest = _per_unit(np.minimum, ui, fa.installed_day, nu, today_day)
     lo = np.maximum(oldest - today_day, -SEARCH_PAST_DAYS)
-    dead = risk_at(lo) >= limit
+    # Before its oldest part went in every x is 0 and so is the risk, unless a
+    # part fails its requirement even when new (threshold 0: risk 1 always).
+    dead = np.bincount(ui, weights=threshold_failed.astype(float), minlength=nu) > 0
     now_above = risk_now >= limit
     other = other_day - today_day  # NaN: no other date
     window = max(policy.watch_days, policy.horizon_days)
@@ -632,12 +646,18 @@ def _pump_thresholds(fa, damage, rate, threshold, role):
     pump = np.flatnonzero((role == ROLE_CODES["pump_flying"]) | (role == ROLE_CODES["pump_reservoir"]))
     if not pump.size:
         return
-    index = {(int(fa.unit_index[i]), int(fa.position_index[i])): i for i in pump}
-    fly = np.array([i for i in pump if role[i] == ROLE_CODES["pump_flying"]], dtype=np.int64)
+    fly = pump[role[pump] == ROLE_CODES["pump_flying"]]
     if not fly.size:
         return
-    res = np.array([index.get((int(fa.unit_index[i]), int(fa.pos_partner[fa.position_index[i]])), -1)
-                    for i in fly], dtype=np.int64)
+    # Each flying part's partner: the row of the same unit at the partner
+    # position, found by a sorted (unit, position) key.
+    n_pos = max(int(fa.pos_id.size), 1)
+    keys = fa.unit_index[pump] * n_pos + fa.position_index[pump]
+    order = np.argsort(keys, kind="stable")
+    partner = fa.pos_partner[fa.position_index[fly]]
+    wanted = fa.unit_index[fly] * n_pos + np.maximum(partner, 0)
+    at = np.clip(np.searchsorted(keys[order], wanted), 0, keys.size - 1)
+    res = np.where((partner >= 0) & (keys[order][at] == wanted), pump[order][at], -1)
     names = ("pump_input_v", "pump_load_a", "pump_freq_hz", "pump_switch_ohm", "pump_min_rail_v")
     vin, load, f, rsw, vmin = (_circuit(fa, n, fly) for n in names)
     ok = (res >= 0) & ~np.isnan(vin) & ~np.isnan(load) & ~np.isnan(f) & ~np.isnan(vmin)

@@ -86,3 +86,17 @@ def test_first_per_unit_picks_the_earliest_rows_like_a_sort(shuffle):
             expected = list(rows[np.argsort(key[rows], kind="stable")][:2])
             expected += [-1] * (2 - len(expected))
             assert list(got[u]) == expected
+
+
+@pytest.mark.parametrize("shuffle", [False, True])
+@pytest.mark.parametrize("ufunc, empty", [(np.minimum, np.inf), (np.maximum, 0.0)])
+def test_per_unit_reduction_matches_ufunc_at(shuffle, ufunc, empty):
+    rng = np.random.default_rng(5)
+    n_units = 30
+    unit_index = np.repeat(np.arange(n_units), rng.integers(0, 6, n_units))
+    if shuffle:
+        unit_index = rng.permutation(unit_index)
+    values = rng.normal(size=unit_index.size)
+    expected = np.full(n_units, empty)
+    ufunc.at(expected, unit_index, values)
+    assert np.array_equal(F._per_unit(ufunc, unit_index, values, n_units, empty), expected)
