@@ -58,15 +58,16 @@ class Command(BaseCommand):
         statements = _loader_sql()
         # Floor and full runs alternate, so that both meet the same state of the
         # machine (page cache, other load); each pair gives a ratio too.
-        floor, full = [], []
+        floor, full, stages = [], [], []
         for _ in range(options["repeat"]):
             t0 = time.perf_counter()
             n_rows = _bare_read(statements)
             t1 = time.perf_counter()
-            forecast_refresh()
+            run = forecast_refresh()
             t2 = time.perf_counter()
             floor.append(t1 - t0)
             full.append(t2 - t1)
+            stages.append(run.seconds)
         with CaptureQueriesContext(connection) as ctx:
             forecast_refresh()
         queries = len(ctx.captured_queries)
@@ -98,6 +99,9 @@ class Command(BaseCommand):
         pairs = sorted(b / a for a, b in zip(floor, full))
         w(f"ratio per run       {statistics.median(pairs):8.2f}     median of {len(pairs)} alternating floor/full runs "
           f"(range {pairs[0]:.2f}-{pairs[-1]:.2f})")
+        best = stages[full.index(best_full)]
+        w(f"  of which          load {best['load']:.3f} s, compute {best['compute']:.3f} s, "
+          f"store {best['store']:.3f} s   (the best full run)")
         w(f"peak memory         {peak / 2**20:8.1f} MB  budget < 400 MB (tracemalloc, Python + numpy)"
           f"   {'ok' if peak < 400 * 2**20 else 'OVER'}")
         w(f"queries, full       {queries:8d}     (same for any fleet size)")
