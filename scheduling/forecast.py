@@ -40,7 +40,7 @@ import numpy as np
 
 from . import histogram as H
 from . import parameters as P
-from . import physics
+from . import physics, roots
 
 DAYS_PER_YEAR = 365.25
 HOURS_PER_YEAR = 8766.0
@@ -271,6 +271,15 @@ def _unpowered_per_year(fa, out_unpowered_h, venue_c, store_frac, opts, factoris
     return per_year
 
 
+def _unit_bounds(unit_index, n_units):
+    """``(starts, ends)`` of each unit's rows when the rows are grouped by unit
+    (``unit_index`` non-decreasing, as the loader reads them), else None."""
+    if np.any(unit_index[1:] < unit_index[:-1]):
+        return None
+    units = np.arange(n_units)
+    return np.searchsorted(unit_index, units, side="left"), np.searchsorted(unit_index, units, side="right")
+
+
 def _per_unit(ufunc, unit_index, values, n_units, empty):
     """``ufunc`` (np.minimum or np.maximum) of ``values`` over each unit's rows,
     with ``empty`` folded in (and given to units without rows).  Rows grouped
@@ -278,11 +287,12 @@ def _per_unit(ufunc, unit_index, values, n_units, empty):
     out = np.full(n_units, empty, dtype=float)
     if not unit_index.size:
         return out
-    if np.any(unit_index[1:] < unit_index[:-1]):
+    bounds = _unit_bounds(unit_index, n_units)
+    if bounds is None:
         ufunc.at(out, unit_index, values)
         return out
-    starts = np.searchsorted(unit_index, np.arange(n_units), side="left")
-    has = starts < np.searchsorted(unit_index, np.arange(n_units), side="right")
+    starts, ends = bounds
+    has = starts < ends
     out[has] = ufunc(ufunc.reduceat(values, starts[has]), empty)
     return out
 
@@ -293,7 +303,8 @@ def _first_per_unit(unit_index, key, n_units, k=1):
     out = np.full((n_units, k), -1, dtype=np.int64)
     if not unit_index.size:
         return out
-    if np.any(unit_index[1:] < unit_index[:-1]):  # not grouped by unit: sort
+    bounds = _unit_bounds(unit_index, n_units)
+    if bounds is None:  # not grouped by unit: sort
         order = np.lexsort((key, unit_index))
         sorted_units = unit_index[order]
         starts = np.searchsorted(sorted_units, np.arange(n_units), side="left")
@@ -303,10 +314,9 @@ def _first_per_unit(unit_index, key, n_units, k=1):
             ok = pos < ends
             out[ok, j] = order[pos[ok]]
         return out
-    # Rows grouped by unit (as the loader reads them): k passes of a per-unit
-    # minimum, each removing the row it found.
-    starts = np.searchsorted(unit_index, np.arange(n_units), side="left")
-    ends = np.searchsorted(unit_index, np.arange(n_units), side="right")
+    # Rows grouped by unit: k passes of a per-unit minimum, each removing the
+    # row it found.
+    starts, ends = bounds
     has = np.flatnonzero(ends > starts)
     work = key.astype(float).copy()
     rows = np.arange(work.size)
@@ -503,12 +513,13 @@ def _risk_crossing_day(risk_function, risk_at, risk_now, fa, today_day, policy, 
     # past its predicted life is evidence that it ages slower): it can rise
     # through the limit and fall back.  Look ahead at a few dates first, so
     # that a crossing before the end of the bracket is not missed.
+    all_rows = np.arange(fa.n_caps)
     ahead_units = np.flatnonzero(~now_above & ~dead)
     for t_look in RISK_LOOKAHEAD_DAYS:
         ahead_units = ahead_units[t_end[ahead_units] > t_look]
         if not ahead_units.size:
             break
-        above = risk_function(np.arange(fa.n_caps), ui, nu, subset=ahead_units)(
+        above = risk_function(all_rows, ui, nu, subset=ahead_units)(
             np.full(ahead_units.size, t_look)) >= limit
         t_end[ahead_units[above]] = t_look
         ahead_units = ahead_units[~above]
@@ -520,9 +531,6 @@ def _risk_crossing_day(risk_function, risk_at, risk_now, fa, today_day, policy, 
     if not open_units.size:
         return day
     r_start = np.where(now_above, 0.0, risk_now)  # at lo the risk is 0 (not dead)
-    local = np.full(nu, -1, dtype=np.int64)
-    local[open_units] = np.arange(open_units.size)
-    rows = np.flatnonzero(local[ui] >= 0)
 
     def log_h(r):
         # The risk reaches the limit where the summed hazard reaches -ln(1 - limit).
@@ -530,8 +538,7 @@ def _risk_crossing_day(risk_function, risk_at, risk_now, fa, today_day, policy, 
             return np.log(np.maximum(-np.log1p(-np.minimum(r, 1.0)), 1e-300))
 
     crossing = _first_crossing(
-        _Shrinking(lambda subset: risk_function(rows, local[ui[rows]], open_units.size, subset=subset,
-                                                log_hazard=True)),
+        _Shrinking(lambda subset: risk_function(all_rows, ui, nu, subset=open_units[subset], log_hazard=True)),
         t_start[open_units], t_end[open_units], log_h(r_start[open_units]), log_h(r_end[open_units]),
         np.log(-np.log1p(-limit)))
     day[open_units] = today_day + crossing
@@ -558,46 +565,11 @@ class _Shrinking:
 
 
 def _first_crossing(value_of, lo, hi, value_lo, value_hi, limit, tol_days=DUE_DATE_TOLERANCE_DAYS):
-    """Per unit, the time t in (lo, hi] where an increasing ``value_of(units, t)``
-    reaches ``limit``; requires ``value_lo`` < limit at lo and ``value_hi`` >= limit at hi.
-
-    ``value_of(units, t)`` evaluates the units ``units`` (indices into lo/hi)
-    at their times ``t``.  A few bisection steps first (the values saturate at
-    the far ends), then the Illinois variant of regula falsi on the value,
-    with a bisection whenever a step would not shrink the bracket enough.
-    Each step works on the units not yet within ``tol_days``.  Returns hi.
-    """
-    lo, hi = lo.astype(float).copy(), hi.astype(float).copy()
-    f_lo = np.asarray(value_lo, dtype=float) - limit
-    f_hi = np.asarray(value_hi, dtype=float) - limit
-    side = np.zeros(lo.size, dtype=np.int8)  # which end moved last: -1 lo, +1 hi
-    for step in range(DUE_DATE_MAX_STEPS):
-        active = np.flatnonzero(hi - lo > tol_days)
-        if not active.size:
-            break
-        a, b, fa_, fb = lo[active], hi[active], f_lo[active], f_hi[active]
-        mid = 0.5 * (a + b)
-        if step < DUE_DATE_BISECTIONS:
-            t = mid
-        else:
-            with np.errstate(divide="ignore", invalid="ignore"):
-                t = b - fb * (b - a) / (fb - fa_)
-            width = b - a
-            t = np.where(np.isfinite(t), t, mid)
-            # A step that lands next to an end goes almost a tolerance in, so
-            # that the next bracket is either under the tolerance or far smaller.
-            margin = np.minimum(0.9 * tol_days, 0.5 * width)
-            t = np.clip(t, a + margin, b - margin)
-        f = value_of(active, t) - limit
-        up = f >= 0
-        k_hi, k_lo = active[up], active[~up]
-        hi[k_hi], f_hi[k_hi] = t[up], f[up]
-        lo[k_lo], f_lo[k_lo] = t[~up], f[~up]
-        # Illinois: an end kept twice in a row has its value halved.
-        f_lo[k_hi[side[k_hi] == 1]] *= 0.5
-        f_hi[k_lo[side[k_lo] == -1]] *= 0.5
-        side[k_hi], side[k_lo] = 1, -1
-    return hi
+    """Per unit, the time t in (lo, hi] [days] where an increasing
+    ``value_of(units, t)`` reaches ``limit`` (``roots.first_crossing``, to within
+    ``tol_days``); returns the upper end of each final bracket."""
+    return roots.first_crossing(value_of, lo, hi, value_lo, value_hi, limit, tol=tol_days,
+                                bisections=DUE_DATE_BISECTIONS, max_steps=DUE_DATE_MAX_STEPS)[1]
 
 
 def _circuit(fa, name, rows):

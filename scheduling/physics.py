@@ -19,6 +19,7 @@ import scipy.interpolate
 import scipy.special
 
 from scheduling import parameters as P
+from scheduling import roots
 
 __all__ = [
     "life_hours_10k", "life_hours_arrhenius", "can_area_cm2", "esr_from_tan_delta_ohm",
@@ -1301,38 +1302,28 @@ def _bisect_threshold(margin, shape):
     """Damage where ``margin(D)`` (non-increasing in D) crosses 0.
 
     0 where margin(0) < 0 (violated already), inf where margin(DAMAGE_MAX) >= 0
-    (never violated within the model).  Vectorised: two halvings, then the
-    Illinois variant of regula falsi (a step next to an end goes a tolerance
-    in), to a bracket of ``ROOT_TOLERANCE_DAMAGE``.
+    (never violated within the model).  Vectorised root finding
+    (``roots.first_crossing`` on -margin) to a bracket of ``ROOT_TOLERANCE_DAMAGE``.
     """
-    lo = np.zeros(shape)
-    hi = np.full(shape, P.DAMAGE_MAX)
-    m_lo, m_hi = np.asarray(margin(lo), dtype=float), np.asarray(margin(hi), dtype=float)
-    bad0 = m_lo < 0
-    bad_max = m_hi < 0
-    tol = P.ROOT_TOLERANCE_DAMAGE
-    active = ~bad0 & bad_max
-    side = np.zeros(shape, dtype=np.int8)
-    for step in range(P.BISECTION_ITERATIONS):
-        if not np.any(active & (hi - lo > tol)):
-            break
-        mid = 0.5 * (lo + hi)
-        if step < 2:
-            t = mid
-        else:
-            with np.errstate(divide="ignore", invalid="ignore"):
-                t = hi - m_hi * (hi - lo) / (m_hi - m_lo)
-            t = np.where(np.isfinite(t), t, mid)
-            edge = np.minimum(0.9 * tol, 0.5 * (hi - lo))
-            t = np.clip(t, lo + edge, hi - edge)
-        t = np.where(active, t, mid)
-        m = np.asarray(margin(t), dtype=float)
-        bad = m < 0
-        keep_hi, keep_lo = ~bad & (side == -1), bad & (side == 1)
-        lo, m_lo = np.where(bad, lo, t), np.where(bad, np.where(keep_lo, 0.5 * m_lo, m_lo), m)
-        hi, m_hi = np.where(bad, t, hi), np.where(bad, m, np.where(keep_hi, 0.5 * m_hi, m_hi))
-        side = np.where(bad, 1, -1).astype(np.int8)
-    return _out(np.where(bad0, 0.0, np.where(bad_max, 0.5 * (lo + hi), np.inf)))
+    size = int(np.prod(shape))
+    lo = np.zeros(size)
+    hi = np.full(size, P.DAMAGE_MAX)
+
+    def shortfall(problems, damage):
+        full = np.zeros(size)
+        full[problems] = damage
+        return -np.broadcast_to(np.asarray(margin(full.reshape(shape)), dtype=float), shape).reshape(-1)[problems]
+
+    every = np.arange(size)
+    s_lo, s_hi = shortfall(every, lo), shortfall(every, hi)
+    bad0, bad_max = s_lo > 0, s_hi > 0
+    solve = np.flatnonzero(~bad0 & bad_max)
+    if solve.size:
+        lo[solve], hi[solve] = roots.first_crossing(
+            lambda k, d: shortfall(solve[k], d), lo[solve], hi[solve], s_lo[solve], s_hi[solve], 0.0,
+            tol=P.ROOT_TOLERANCE_DAMAGE, bisections=2, max_steps=P.BISECTION_ITERATIONS)
+    found = np.where(bad0, 0.0, np.where(bad_max, 0.5 * (lo + hi), np.inf))
+    return _out(found.reshape(shape))
 
 
 def threshold_pump(vin_v, load_a, pump_hz, c_fly_f, c_res_f, esr_fly0_ohm, esr_res0_ohm,
