@@ -108,7 +108,8 @@ RK4_STEPS = 200
 # --- Circuits --------------------------------------------------------------
 
 #: Weight of the flying (pump) capacitor's ESR in a charge-pump inverter's
-#: output resistance.  [V] classic converter data sheet (ICL7660 family):
+#: output resistance.  [V] a classic CMOS switched-capacitor voltage converter
+#: data sheet:
 #: ``Ro = 2(23) + 1/(f_pump*C1) + 4*ESR_C1 + ESR_C2 ~= 46 + 20 + 5*ESR_C``;
 #: its "5" is 4 + 1 for equal ESRs, not a rounding of the 4.
 FLYING_ESR_FACTOR = 4.0
