@@ -32,56 +32,38 @@ The model, in order:
    horizon), watch (within ``watch_days``), ok.
 """
 
-import datetime as dt
-import functools
 from dataclasses import dataclass
 
 import numpy as np
 
 from . import histogram as H
 from . import parameters as P
-from . import physics, roots
+from . import physics
+from .crossing import (  # noqa: F401  (the solver's settings, read by tests and the bench)
+    DUE_DATE_BISECTIONS,
+    DUE_DATE_MAX_STEPS,
+    DUE_DATE_TOLERANCE_DAYS,
+    RISK_LOOKAHEAD_DAYS,
+    SEARCH_FUTURE_DAYS,
+    SEARCH_PAST_DAYS,
+    _first_crossing,
+    _risk_crossing_day,
+    _Shrinking,
+)
+from .days import DAYS_PER_YEAR, HOURS_PER_YEAR, MONTH_HOURS, date_to_day, day_to_date  # noqa: F401
+from .grouping import _first_per_unit, _per_unit, _unit_bounds  # noqa: F401
+from .reasons import _reasons
+from .thresholds import DAMAGE_THRESHOLD_CAP, ROLE_CODES, ROLE_NAMES, _thresholds  # noqa: F401
 
-DAYS_PER_YEAR = 365.25
-HOURS_PER_YEAR = 8766.0
-#: Hours in each calendar month of an average year (February 28.25 days).
-MONTH_HOURS = np.array([31, 28.25, 31, 30, 31, 30, 31, 31, 30, 31, 30, 31], dtype=float) * 24.0
-
-#: Largest damage threshold a role may give [-].  Our choice: the drift laws
-#: are calibrated at D = 1 (endurance-test limits); beyond about twice that
-#: the extrapolation is not trusted, and parts that far gone may vent or open.
-DAMAGE_THRESHOLD_CAP = 2.0
 #: Use assumed for a gear model with no unit having twelve months of history:
 #: hire days per year and venue ambient.  Our assumption, not a published value.
 DEFAULT_HIRE_DAYS_PER_YEAR = 60.0
 DEFAULT_HIRE_LENGTH_DAYS = 2.0
 DEFAULT_VENUE_AMBIENT_C = 25.0
-#: Search range of the due-date solver, days from today.
-SEARCH_PAST_DAYS = 21915.0  # 60 years
-SEARCH_FUTURE_DAYS = 36525.0
-#: The risk-crossing solver (numerical): stop when the bracket is under half
-#: a day; halve the bracket this many times before the secant steps start;
-#: give up after this many steps (bisection alone needs 17 for 60 + 100 years).
-DUE_DATE_TOLERANCE_DAYS = 0.5
-#: Days ahead at which the risk is looked at before the crossing is solved
-#: (the risk given survival can peak and fall back).  Our choice.
-RISK_LOOKAHEAD_DAYS = (90.0, 365.0, 1095.0, 3652.0, 10957.0)
-DUE_DATE_BISECTIONS = 3
-DUE_DATE_MAX_STEPS = 40
-#: Tolerance of the pump pair's failure time [days] (numerical): about 1 s,
-#: so that the thresholds reproduce the minimum rail to better than 1e-6.
-PUMP_TOLERANCE_DAYS = 1e-5
 #: Chunk of capacitors for the Arrhenius histogram path (memory bound).
 CHUNK = 20_000
 
 STATUS_OK, STATUS_WATCH, STATUS_DUE, STATUS_OVERDUE = "ok", "watch", "due", "overdue"
-
-#: Capacitor roles as small integers in the arrays (names as in fleet.models.Role).
-ROLE_CODES = {
-    "general": 0, "supply_decoupling": 1, "timing": 2, "supply_reservoir": 3,
-    "pump_flying": 4, "pump_reservoir": 5, "signal_coupling": 6,
-}
-ROLE_NAMES = {v: k for k, v in ROLE_CODES.items()}
 
 
 @dataclass
@@ -140,14 +122,6 @@ class FleetForecast:
     storage_reform: np.ndarray
     max_damage_ratio: np.ndarray
     reasons: list
-
-
-def day_to_date(day):
-    return dt.date(1970, 1, 1) + dt.timedelta(days=int(np.floor(day)))
-
-
-def date_to_day(date):
-    return float((date - dt.date(1970, 1, 1)).days)
 
 
 def _inverse_life(fa_rated_life_h, rated_temp_c, temp_c, opts):
@@ -269,67 +243,6 @@ def _unpowered_per_year(fa, out_unpowered_h, venue_c, store_frac, opts, factoris
     for m in range(12):
         per_year += store_weights[ui, m] * _inverse_life(L0, T0, fa.monthly_store_c[ui, m], opts)
     return per_year
-
-
-def _unit_bounds(unit_index, n_units):
-    """``(starts, ends)`` of each unit's rows when the rows are grouped by unit
-    (``unit_index`` non-decreasing, as the loader reads them), else None."""
-    if np.any(unit_index[1:] < unit_index[:-1]):
-        return None
-    units = np.arange(n_units)
-    return np.searchsorted(unit_index, units, side="left"), np.searchsorted(unit_index, units, side="right")
-
-
-def _per_unit(ufunc, unit_index, values, n_units, empty):
-    """``ufunc`` (np.minimum or np.maximum) of ``values`` over each unit's rows,
-    with ``empty`` folded in (and given to units without rows).  Rows grouped
-    by unit (as the loader reads them) take one ``reduceat``; otherwise ``at``."""
-    out = np.full(n_units, empty, dtype=float)
-    if not unit_index.size:
-        return out
-    bounds = _unit_bounds(unit_index, n_units)
-    if bounds is None:
-        ufunc.at(out, unit_index, values)
-        return out
-    starts, ends = bounds
-    has = starts < ends
-    out[has] = ufunc(ufunc.reduceat(values, starts[has]), empty)
-    return out
-
-
-def _first_per_unit(unit_index, key, n_units, k=1):
-    """Capacitor row indices of the ``k`` smallest ``key`` per unit (-1 where none);
-    ties go to the earlier row."""
-    out = np.full((n_units, k), -1, dtype=np.int64)
-    if not unit_index.size:
-        return out
-    bounds = _unit_bounds(unit_index, n_units)
-    if bounds is None:  # not grouped by unit: sort
-        order = np.lexsort((key, unit_index))
-        sorted_units = unit_index[order]
-        starts = np.searchsorted(sorted_units, np.arange(n_units), side="left")
-        ends = np.searchsorted(sorted_units, np.arange(n_units), side="right")
-        for j in range(k):
-            pos = starts + j
-            ok = pos < ends
-            out[ok, j] = order[pos[ok]]
-        return out
-    # Rows grouped by unit: k passes of a per-unit minimum, each removing the
-    # row it found.
-    starts, ends = bounds
-    has = np.flatnonzero(ends > starts)
-    work = key.astype(float).copy()
-    rows = np.arange(work.size)
-    sizes = ends[has] - starts[has]
-    for j in range(k):
-        # fmin skips NaN, the mark of a row already taken.
-        least = np.fmin.reduceat(work, starts[has])
-        hit = work == np.repeat(least, sizes)
-        first = np.minimum.reduceat(np.where(hit, rows, work.size), starts[has])
-        ok = first < work.size
-        out[has[ok], j] = first[ok]
-        work[first[ok]] = np.nan
-    return out
 
 
 def compute(fa, *, today, policy=None, options=None):
@@ -481,321 +394,3 @@ def compute(fa, *, today, policy=None, options=None):
     return FleetForecast(today_day=today_day, damage=damage, esr_ohm=esr, capacitance_f=cap, threshold=threshold,
                          rate_per_day=rate, reaches_day=reaches, risk=risk, due_day=due_day, status=status,
                          storage_reform=storage_reform, max_damage_ratio=ratio, reasons=reasons)
-
-
-def _risk_crossing_day(risk_function, risk_at, risk_now, fa, today_day, policy, other_day, threshold_failed):
-    """Day the unit's risk over the horizon reaches the policy limit, where it
-    matters: before ``other_day`` (the earliest other due date) for the due
-    date, or within the watch window for the reasons.
-
-    Units whose crossing cannot matter are not solved: a crossing already
-    passed but after ``other_day`` is given as today (it only says "now" in
-    the reasons), one beyond both ``other_day`` and the watch window as NaN.
-    A unit with a part that fails its requirement even when new is at risk
-    from its oldest part's fitting.
-    """
-    nu, ui = fa.n_units, fa.unit_index
-    limit = policy.risk_limit
-    oldest = _per_unit(np.minimum, ui, fa.installed_day, nu, today_day)
-    lo = np.maximum(oldest - today_day, -SEARCH_PAST_DAYS)
-    # Before its oldest part went in every x is 0 and so is the risk, unless a
-    # part fails its requirement even when new (threshold 0: risk 1 always).
-    dead = np.bincount(ui, weights=threshold_failed.astype(float), minlength=nu) > 0
-    now_above = risk_now >= limit
-    other = other_day - today_day  # NaN: no other date
-    window = max(policy.watch_days, policy.horizon_days)
-    # The far end of the bracket that matters: the other date when the
-    # crossing is already past; later of the other date and the watch window ahead.
-    ahead = np.clip(np.where(np.isnan(other), SEARCH_FUTURE_DAYS, np.fmax(other, window)), 0.0, SEARCH_FUTURE_DAYS)
-    t_end = np.where(now_above, np.where(other < 0, np.maximum(other, lo), 0.0), ahead)
-    t_start = np.where(now_above, lo, 0.0)
-    # Given that the unit works, the risk need not rise for ever (a unit far
-    # past its predicted life is evidence that it ages slower): it can rise
-    # through the limit and fall back.  Look ahead at a few dates first, so
-    # that a crossing before the end of the bracket is not missed.
-    all_rows = np.arange(fa.n_caps)
-    ahead_units = np.flatnonzero(~now_above & ~dead)
-    for t_look in RISK_LOOKAHEAD_DAYS:
-        ahead_units = ahead_units[t_end[ahead_units] > t_look]
-        if not ahead_units.size:
-            break
-        above = risk_function(all_rows, ui, nu, subset=ahead_units)(
-            np.full(ahead_units.size, t_look)) >= limit
-        t_end[ahead_units[above]] = t_look
-        ahead_units = ahead_units[~above]
-    r_end = risk_at(t_end)
-    solve = ~dead & (r_end >= limit) & (t_end > t_start)
-    day = np.where(dead, today_day + lo, np.where(now_above, today_day, np.nan))
-    day[solve] = today_day + t_end[solve]
-    open_units = np.flatnonzero(solve & (t_end - t_start > DUE_DATE_TOLERANCE_DAYS))
-    if not open_units.size:
-        return day
-    r_start = np.where(now_above, 0.0, risk_now)  # at lo the risk is 0 (not dead)
-
-    def log_h(r):
-        # The risk reaches the limit where the summed hazard reaches -ln(1 - limit).
-        with np.errstate(divide="ignore"):
-            return np.log(np.maximum(-np.log1p(-np.minimum(r, 1.0)), 1e-300))
-
-    crossing = _first_crossing(
-        _Shrinking(lambda subset: risk_function(all_rows, ui, nu, subset=open_units[subset], log_hazard=True)),
-        t_start[open_units], t_end[open_units], log_h(r_start[open_units]), log_h(r_end[open_units]),
-        np.log(-np.log1p(-limit)))
-    day[open_units] = today_day + crossing
-    return day
-
-
-class _Shrinking:
-    """``value_of(units, t)`` for :func:`_first_crossing` from a factory of
-    evaluators over a subset of units; the evaluator is rebuilt on the smaller
-    subset only when the units asked for fall to half of those it holds."""
-
-    def __init__(self, factory):
-        self.factory, self.units, self.evaluate = factory, None, None
-
-    def __call__(self, units, t):
-        if self.units is None or units.size * 2 <= self.units.size:
-            self.units, self.evaluate = units, self.factory(units)
-        if units.size == self.units.size:
-            return self.evaluate(t)
-        t_all = np.zeros(self.units.size)
-        where = np.searchsorted(self.units, units)
-        t_all[where] = t
-        return self.evaluate(t_all)[where]
-
-
-def _first_crossing(value_of, lo, hi, value_lo, value_hi, limit, tol_days=DUE_DATE_TOLERANCE_DAYS):
-    """Per unit, the time t in (lo, hi] [days] where an increasing
-    ``value_of(units, t)`` reaches ``limit`` (``roots.first_crossing``, to within
-    ``tol_days``); returns the upper end of each final bracket."""
-    return roots.first_crossing(value_of, lo, hi, value_lo, value_hi, limit, tol=tol_days,
-                                bisections=DUE_DATE_BISECTIONS, max_steps=DUE_DATE_MAX_STEPS)[1]
-
-
-def _circuit(fa, name, rows):
-    return fa.pos_circuit[name][fa.position_index[rows]]
-
-
-def _thresholds(fa, damage, rate):
-    """Role-aware damage threshold D* per capacitor (step 4)."""
-    nc = fa.n_caps
-    threshold = np.full(nc, P.GENERAL_DAMAGE_THRESHOLD)
-    role = fa.pos_role[fa.position_index]
-
-    # Signal coupling: the high-pass corner must stay below its limit.
-    rows = np.flatnonzero(role == ROLE_CODES["signal_coupling"])
-    if rows.size:
-        r, fmax = _circuit(fa, "coupling_load_ohm", rows), _circuit(fa, "coupling_max_corner_hz", rows)
-        ok = ~np.isnan(r) & ~np.isnan(fmax)
-        if np.any(ok):
-            threshold[rows[ok]] = physics.threshold_coupling(r[ok], fa.capacitance_f[rows[ok]], fmax[ok])
-
-    # Supply reservoir: ripple must stay below its limit.
-    rows = np.flatnonzero(role == ROLE_CODES["supply_reservoir"])
-    if rows.size:
-        load = _circuit(fa, "reservoir_load_a", rows)
-        f = _circuit(fa, "reservoir_ripple_freq_hz", rows)
-        lim = _circuit(fa, "reservoir_ripple_limit_v", rows)
-        ok = ~np.isnan(load) & ~np.isnan(f) & ~np.isnan(lim)
-        if np.any(ok):
-            k = rows[ok]
-            threshold[k] = physics.threshold_reservoir(load[ok], f[ok], fa.capacitance_f[k], fa.esr0_ohm[k], lim[ok])
-
-    # Charge pump: the negative rail must stay beyond its minimum magnitude.
-    _pump_thresholds(fa, damage, rate, threshold, role)
-    return np.clip(threshold, 0.0, DAMAGE_THRESHOLD_CAP)
-
-
-def _pump_thresholds(fa, damage, rate, threshold, role):
-    """Thresholds of the two capacitors of each switched-capacitor inverter.
-
-    Both capacitors age at once, so the rail fails at one moment for the pair:
-    find the time t (days from today) at which ``physics.inverter_output_v``
-    with both parts drifted (damage + rate * t) reaches the minimum rail
-    magnitude, by vectorised bisection; each part's threshold is its damage at
-    that moment.  A pair whose rail fails even with new parts gets 0.
-    """
-    pump = np.flatnonzero((role == ROLE_CODES["pump_flying"]) | (role == ROLE_CODES["pump_reservoir"]))
-    if not pump.size:
-        return
-    fly = pump[role[pump] == ROLE_CODES["pump_flying"]]
-    if not fly.size:
-        return
-    # Each flying part's partner: the row of the same unit at the partner
-    # position, found by a sorted (unit, position) key.
-    n_pos = max(int(fa.pos_id.size), 1)
-    keys = fa.unit_index[pump] * n_pos + fa.position_index[pump]
-    order = np.argsort(keys, kind="stable")
-    partner = fa.pos_partner[fa.position_index[fly]]
-    wanted = fa.unit_index[fly] * n_pos + np.maximum(partner, 0)
-    at = np.clip(np.searchsorted(keys[order], wanted), 0, keys.size - 1)
-    res = np.where((partner >= 0) & (keys[order][at] == wanted), pump[order][at], -1)
-    names = ("pump_input_v", "pump_load_a", "pump_freq_hz", "pump_switch_ohm", "pump_min_rail_v")
-    vin, load, f, rsw, vmin = (_circuit(fa, n, fly) for n in names)
-    ok = (res >= 0) & ~np.isnan(vin) & ~np.isnan(load) & ~np.isnan(f) & ~np.isnan(vmin)
-    fly, res, vin, load, f, rsw, vmin = (a[ok] for a in (fly, res, vin, load, f, rsw, vmin))
-    if not fly.size:
-        return
-    rsw = np.nan_to_num(rsw)
-
-    def margin_of(units, t):
-        a, b = fly[units], res[units]
-        d_f = np.maximum(damage[a] + rate[a] * t, 0.0)
-        d_r = np.maximum(damage[b] + rate[b] * t, 0.0)
-        v = physics.inverter_output_v(
-            vin[units], load[units], f[units], physics.capacitance_at_damage(fa.capacitance_f[a], d_f),
-            physics.capacitance_at_damage(fa.capacitance_f[b], d_r),
-            physics.esr_at_damage(fa.esr0_ohm[a], d_f), physics.esr_at_damage(fa.esr0_ohm[b], d_r), rsw[units])
-        return -v - vmin[units]  # >= 0 while the rail is deep enough
-
-    with np.errstate(divide="ignore", invalid="ignore"):
-        back = np.minimum(np.where(rate[fly] > 0, damage[fly] / rate[fly], 0.0),
-                          np.where(rate[res] > 0, damage[res] / rate[res], 0.0))
-    every = np.arange(fly.size)
-    lo = -back                                   # the younger part is new here
-    hi = np.full(fly.size, SEARCH_FUTURE_DAYS)
-    m_lo, m_hi = margin_of(every, lo), margin_of(every, hi)
-    fails_new = m_lo < 0
-    never = m_hi >= 0
-    solve = np.flatnonzero(~fails_new & ~never)
-    if solve.size:
-        # The rail's shortfall (-margin) rises through 0 at the failure time.
-        hi[solve] = _first_crossing(
-            lambda units, t: -margin_of(solve[units], t), lo[solve], hi[solve], -m_lo[solve], -m_hi[solve], 0.0,
-            tol_days=PUMP_TOLERANCE_DAYS)
-    t_fail = np.where(fails_new, -back, hi)
-    for rows in (fly, res):
-        at_fail = np.maximum(damage[rows] + rate[rows] * t_fail, 0.0)
-        threshold[rows] = np.where(never, DAMAGE_THRESHOLD_CAP, np.where(fails_new, 0.0, at_fail))
-
-
-ROLE_WORDS = {
-    "general": "general", "supply_decoupling": "supply decoupling", "timing": "timing",
-    "supply_reservoir": "supply reservoir", "pump_flying": "pump flying", "pump_reservoir": "pump reservoir",
-    "signal_coupling": "signal coupling",
-}
-
-
-@functools.lru_cache(maxsize=4096)
-def _month(day):
-    return f"{day_to_date(day):%Y-%m}"
-
-
-def _when(day, today_day):
-    month = _month(int(np.floor(day)))
-    return f"since about {month}" if day < today_day else f"by {month}"
-
-
-def _months(days):
-    """``YYYY-MM`` of each of ``days`` (float days since 1970-01-01; NaN and
-    infinities give ``''``), in one array step."""
-    days = np.asarray(days, dtype=float)
-    ok = np.isfinite(days)
-    out = np.floor(np.where(ok, days, 0.0)).astype("int64").astype("datetime64[D]").astype("datetime64[M]")
-    return np.where(ok, out.astype(str), "").tolist()
-
-
-def _position_name(fa, cache, pos):
-    """``C12 (supply reservoir)`` for position ``pos``."""
-    if pos not in cache:
-        cache[pos] = f"{fa.pos_designator[pos]} ({ROLE_WORDS[ROLE_NAMES[int(fa.pos_role[pos])]]})"
-    return cache[pos]
-
-
-def _position_reason(fa, cache, pos, past, month, reach_day, today_day, damage, threshold):
-    """Words for a capacitor at position ``pos``.  The wording is kept in
-    ``cache`` (one per forecast run) per (position, month, crossed?) as a
-    template, since the units of one gear model share their positions' words;
-    only the damage figures differ between units."""
-    key = (pos, None if past else month, threshold <= 0)
-    template = cache.get(key)
-    if template is None:
-        template = cache[key] = _position_reason_template(fa, pos, reach_day, today_day, threshold <= 0)
-    return template.format(damage=damage, threshold=threshold) if past else template
-
-
-def _position_reason_template(fa, pos, reach_day, today_day, threshold_is_zero):
-    des = fa.pos_designator[pos].replace("{", "{{").replace("}", "}}")
-    role = ROLE_NAMES[int(fa.pos_role[pos])]
-    c = fa.pos_circuit
-    if threshold_is_zero:
-        return (f"{des} {ROLE_WORDS[role]}: the circuit requirement is not met even by a new part; "
-                "check this position's circuit figures")
-    if role in ("pump_flying", "pump_reservoir") and not np.isnan(c["pump_min_rail_v"][pos]):
-        what = f"negative rail would sag below {c['pump_min_rail_v'][pos]:g} V"
-    elif role == "supply_reservoir" and not np.isnan(c["reservoir_ripple_limit_v"][pos]):
-        what = f"supply ripple would exceed {c['reservoir_ripple_limit_v'][pos]:g} V p-p"
-    elif role == "signal_coupling" and not np.isnan(c["coupling_max_corner_hz"][pos]):
-        what = f"bass roll-off would rise above {c['coupling_max_corner_hz'][pos]:g} Hz"
-    else:
-        what = "reaches end-of-life drift (ESR doubled, capacitance down 20%)"
-    if reach_day < today_day:
-        what = what.replace("would rise", "has already risen").replace("would exceed", "already exceeds").replace(
-            "would sag", "already sags").replace("reaches", "past")
-        return f"{des} {ROLE_WORDS[role]}: {what}; damage {{damage:.1f}} against a limit of {{threshold:.2f}}"
-    return f"{des} {ROLE_WORDS[role]}: {what} {_when(reach_day, today_day)}"
-
-
-def _reasons(fa, policy, today_day, damage, threshold, reaches, risk, risk_day, age_day, has_original,
-             storage_reform, unpowered_months, drivers):
-    nu = fa.n_units
-    key = np.where(np.isnan(reaches), np.inf, reaches)
-    first = _first_per_unit(fa.unit_index, key, nu, k=2) if fa.n_caps else np.full((nu, 2), -1)
-    horizon_end = today_day + max(policy.watch_days, policy.horizon_days)
-    # Which units say anything at all, and every figure the words need, are
-    # found on whole arrays; the loop below only puts the words together.
-    # Plain lists: no numpy scalars in the loop.
-    taken = np.maximum(first, 0)
-    first_key = np.where(first >= 0, key[taken], np.inf)
-    pos_says_a = np.isfinite(first_key) & (first_key <= horizon_end)
-    risk_says_a = risk_day <= horizon_end  # NaN compares False
-    age_says_a = has_original & (age_day <= horizon_end)
-    says = (risk_says_a | pos_says_a.any(axis=1) | age_says_a | storage_reform).tolist() if nu else []
-    risk_says, pos_says, age_says = risk_says_a.tolist(), pos_says_a.tolist(), age_says_a.tolist()
-    reform = storage_reform.tolist()
-    risk_l, risk_day_l, age_l = risk.tolist(), risk_day.tolist(), age_day.tolist()
-    first_key_l = first_key.tolist()
-    first_pos = (fa.position_index[taken] if fa.n_caps else taken).tolist()
-    first_damage, first_threshold = (damage[taken].tolist(), threshold[taken].tolist()) if fa.n_caps else ([], [])
-    first_month = _months(first_key.reshape(-1))
-    risk_month, age_month = _months(risk_day), _months(age_day)
-    driver_pos = np.where(drivers >= 0, fa.position_index[np.maximum(drivers, 0)] if fa.n_caps else -1, -1).tolist()
-    months_l = unpowered_months.tolist()
-    horizon, limit = f"{policy.horizon_days:g}", f"{policy.risk_limit:.0%}"
-    years = f"{policy.calendar_age_years:g}"
-    cache, names_cache = {}, {}
-    out = []
-    for u in range(nu):
-        if not says[u]:
-            out.append([])
-            continue
-        items = []
-        if risk_says[u]:
-            when = risk_day_l[u]
-            if when <= today_day:
-                text = f"Chance of a capacitor fault within {horizon} days is {risk_l[u]:.0%} now (house limit {limit})"
-            else:
-                text = (f"Chance of a capacitor fault within {horizon} days reaches {limit} by {risk_month[u]} "
-                        f"(now {risk_l[u]:.0%})")
-            names = [_position_name(fa, names_cache, pos) for pos in driver_pos[u] if pos >= 0]
-            if names:
-                text += ", mostly from " + " and ".join(names)
-            items.append((when, text))
-        for j in (0, 1):
-            if pos_says[u][j]:
-                when = first_key_l[u][j]
-                items.append((when, _position_reason(fa, cache, first_pos[u][j], when < today_day,
-                                                     first_month[2 * u + j], when, today_day,
-                                                     first_damage[u][j], first_threshold[u][j])))
-        if age_says[u]:
-            when = age_l[u]
-            items.append((when, f"Original capacitors pass {years} years of age "
-                                f"{'since about' if when < today_day else 'by'} {age_month[u]}"))
-        if len(items) > 1:
-            items.sort(key=lambda x: x[0])
-        words = [w for _, w in items]
-        if reform[u]:
-            words.append(f"Unpowered for {months_l[u]:.0f} months: reform the capacitors "
-                         "(bring the unit up slowly on a current-limited supply) before it goes out")
-        out.append(words)
-    return out
