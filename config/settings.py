@@ -72,6 +72,7 @@ INSTALLED_APPS = [
     "fleet",
     "scheduling",
     "reports",
+    "front",
 ]
 
 MIDDLEWARE = [
@@ -113,6 +114,9 @@ try:
     }
 except ValueError as exc:
     raise ImproperlyConfigured(f"DATABASE_URL is not a database address: {exc}") from None
+if env_str("TEST_DATABASE_NAME"):
+    # Two test runs against one server at once need test databases of their own.
+    DATABASES["default"].setdefault("TEST", {})["NAME"] = env_str("TEST_DATABASE_NAME")
 if DATABASES["default"]["ENGINE"] == "django.db.backends.sqlite3":
     # SQLite cannot create its file in a folder that does not exist yet.
     VAR_DIR.mkdir(parents=True, exist_ok=True)

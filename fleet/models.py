@@ -328,6 +328,11 @@ class Unit(models.Model):
     prior_storage_c = models.FloatField("prior use: storage temperature", default=20.0,
                                         validators=ambient_validators(), help_text="degC")
     notes = models.TextField(blank=True)
+    records_version = models.PositiveIntegerField(
+        default=1, editable=False,
+        help_text="Goes up whenever the records the unit's exposure is worked out from change (a hire closed "
+                  "or edited, fitted parts, dates, prior use, home location, the model's internal rise).",
+    )
 
     class Meta:
         ordering = ["asset_tag"]
@@ -346,16 +351,13 @@ class Unit(models.Model):
 
 class UnitCapacitor(CapacitorRatings):
     """The part fitted in one position of one unit.  Starts as a copy of the
-    gear model's position; a recap replaces the ratings and the install date."""
+    gear model's position; a recap replaces the ratings and the install date
+    (a replaced part's damage is counted from that date on)."""
 
     unit = models.ForeignKey(Unit, on_delete=models.CASCADE, related_name="capacitors")
     position = models.ForeignKey(Position, on_delete=models.PROTECT, related_name="fitted")
     installed_on = models.DateField(help_text="Date this part went in (date of manufacture for originals).")
     is_original = models.BooleanField(default=True)
-    baseline = models.ForeignKey(
-        "scheduling.HistogramSnapshot", null=True, blank=True, on_delete=models.PROTECT, related_name="+",
-        help_text="The unit's thermal history when this part went in; empty for originals.",
-    )
 
     class Meta:
         ordering = ["unit", "position__designator"]

@@ -1,14 +1,23 @@
 """Services of the fleet register: everything that writes more than one row.
 
-Views, forms, the admin, CSV import and commands call these; none of them
-writes the models directly.  Each service runs in one transaction, so a failure
-leaves nothing half-written.
+The register knows nothing of the life engine.  Whatever changes the records
+a unit's exposure is worked out from (a hire closed, parts fitted, dates,
+prior use, home location, a model's internal rise or a location's
+temperatures) raises the unit's ``records_version`` through
+:func:`units_mark_changed`; the engine compares it with the version its own
+state was built from and brings itself up to date.
+
+Workflows that span the register and the engine (check-in with its verdict,
+a recap with a fresh forecast, an import followed by the histories) live in
+``front.workflows`` and call these.  Each service runs in one transaction, so
+a failure leaves nothing half-written.
 """
 
 import datetime as dt
 
 from django.core.exceptions import ValidationError
 from django.db import IntegrityError, transaction
+from django.db.models import F, Q
 from django.utils import timezone
 
 from .models import Position, Rental, ReplacedPart, ServiceRecord, Unit, UnitCapacitor
@@ -25,6 +34,25 @@ class ServiceError(Exception):
 
 def _manufacture_date(unit):
     return dt.date(unit.year_made, 7, 1)
+
+
+def units_mark_changed(*, unit_ids=None, gear_model_ids=None, location_ids=None):
+    """Raise ``records_version`` of the units whose exposure records changed.
+
+    Give the units themselves, or every unit of some gear models (their
+    internal rise changed), or every unit stored at some locations (their
+    temperatures changed).  One UPDATE; returns the number of units marked.
+    """
+    which = Q()
+    if unit_ids:
+        which |= Q(pk__in=list(unit_ids))
+    if gear_model_ids:
+        which |= Q(gear_model_id__in=list(gear_model_ids))
+    if location_ids:
+        which |= Q(home_location_id__in=list(location_ids))
+    if not which:
+        return 0
+    return Unit.objects.filter(which).update(records_version=F("records_version") + 1)
 
 
 def unit_populate(*, units, positions_by_model=None):
@@ -62,15 +90,12 @@ def unit_populate(*, units, positions_by_model=None):
 
 
 @transaction.atomic
-def unit_create(**fields):
-    """Create a unit, copy its model's capacitor population and start its thermal history."""
+def unit_add(**fields):
+    """Create a unit and copy its model's capacitor population into it."""
     unit = Unit(**fields)
     unit.full_clean()
     unit.save()
     unit_populate(units=[unit])
-    from scheduling.thermal import thermal_start
-
-    thermal_start(unit_ids=[unit.pk])
     return unit
 
 
@@ -79,11 +104,9 @@ def _open_rental(unit_id):
 
 
 @transaction.atomic
-def rental_check_out(*, unit_id, job_ref, out_at=None, expected_ambient_c=25.0, user=None):
-    """Check a unit out on a hire.  Refuses a unit that is already out, retired,
-    held or on the bench.  Brings the unit's storage history up to ``out_at``."""
-    from scheduling.thermal import thermal_advance_storage
-
+def rental_open(*, unit_id, job_ref, out_at=None, expected_ambient_c=25.0, user=None):
+    """Record a unit going out on a hire.  Refuses a unit that is already out,
+    retired, held or on the bench, and a check-out before the last return."""
     unit = Unit.objects.select_for_update().get(pk=unit_id)
     out_at = out_at or timezone.now()
     if _open_rental(unit.pk) is not None:
@@ -96,7 +119,6 @@ def rental_check_out(*, unit_id, job_ref, out_at=None, expected_ambient_c=25.0, 
     rental = Rental(unit=unit, job_ref=job_ref.strip(), out_at=out_at, expected_ambient_c=expected_ambient_c,
                     checked_out_by=user)
     rental.full_clean()
-    thermal_advance_storage(unit_ids=[unit.pk], until=out_at)
     try:
         rental.save()
     except IntegrityError:
@@ -107,17 +129,16 @@ def rental_check_out(*, unit_id, job_ref, out_at=None, expected_ambient_c=25.0, 
 
 
 @transaction.atomic
-def rental_check_in(*, unit_id, in_at=None, venue_ambient_c, powered_hours=None, meter_reading_h=None,
-                    reported_faults="", user=None):
-    """Check a unit back in and add the hire to its thermal history.
+def rental_close(*, unit_id, in_at=None, venue_ambient_c, powered_hours=None, meter_reading_h=None,
+                 reported_faults="", user=None):
+    """Record a unit coming back from its hire.
 
     Give either ``powered_hours`` (an estimate) or ``meter_reading_h`` (the
     unit's hour meter now; powered hours are the difference from the last
     reading).  Powered hours may not exceed the time out; the meter may not run
-    backwards.  A unit with reported faults goes on hold for the bench.
+    backwards.  A unit with reported faults goes on hold for the bench, any
+    other becomes available.  Marks the unit's records changed.
     """
-    from scheduling.thermal import thermal_add_rental
-
     unit = Unit.objects.select_for_update().get(pk=unit_id)
     rental = _open_rental(unit.pk)
     if rental is None:
@@ -156,32 +177,30 @@ def rental_check_in(*, unit_id, in_at=None, venue_ambient_c, powered_hours=None,
     if meter_reading_h is not None:
         unit.hour_meter_h = meter_reading_h
     unit.status = Unit.Status.HOLD if rental.reported_faults else Unit.Status.AVAILABLE
-    unit.save(update_fields=["status", "hour_meter_h"])
-    thermal_add_rental(rental=rental, internal_rise_k=unit.gear_model.internal_rise_k)
-    # The desk must know at once whether the unit may go out again.
-    from scheduling.services import forecast_refresh
-
-    run = forecast_refresh(unit_ids=[unit.pk], today=timezone.localdate(in_at))
-    # A unit the forecast calls due or overdue is held for a recap, like a
-    # unit that came back with a fault: the desk must not hire it out again.
-    if unit.status == Unit.Status.AVAILABLE and run.fleet.n_units and run.result.status[0] in ("due", "overdue"):
-        unit.status = Unit.Status.HOLD
-        unit.save(update_fields=["status"])
+    unit.records_version = F("records_version") + 1
+    unit.save(update_fields=["status", "hour_meter_h", "records_version"])
+    unit.refresh_from_db(fields=["records_version"])
+    rental.unit = unit
     return rental
 
 
 @transaction.atomic
-def service_record_recap(*, unit_id, performed_on, replacements, technician=None, technician_name="", notes="",
-                         kind=ServiceRecord.Kind.RECAP):
+def unit_hold(*, unit_id):
+    """Put an available unit on hold (the desk must not hire it out).  Returns
+    True if the status changed."""
+    return bool(Unit.objects.filter(pk=unit_id, status=Unit.Status.AVAILABLE).update(status=Unit.Status.HOLD))
+
+
+@transaction.atomic
+def recap_record(*, unit_id, performed_on, replacements, technician=None, technician_name="", notes="",
+                 kind=ServiceRecord.Kind.RECAP):
     """Record a service in which positions were replaced.
 
     ``replacements`` maps a designator to a dict of the new part's ratings
     (any rating left out is kept from the part that came out).  The unit's
-    capacitor rows take the new ratings and install date, and their damage is
-    counted afresh from a snapshot of the unit's thermal history.
+    capacitor rows take the new ratings and the install date ``performed_on``;
+    the unit's records are marked changed when any part was replaced.
     """
-    from scheduling.thermal import thermal_snapshot
-
     unit = Unit.objects.select_for_update().get(pk=unit_id)
     fitted = {
         c.position.designator: c
@@ -194,8 +213,6 @@ def service_record_recap(*, unit_id, performed_on, replacements, technician=None
                            technician_name=technician_name, notes=notes)
     record.full_clean()
     record.save()
-    when = timezone.make_aware(dt.datetime.combine(performed_on, dt.time(12, 0)))
-    snapshot = thermal_snapshot(unit_id=unit.pk, at=when) if replacements else None
     parts = []
     for designator, new in sorted(replacements.items()):
         cap = fitted[designator]
@@ -216,7 +233,8 @@ def service_record_recap(*, unit_id, performed_on, replacements, technician=None
             setattr(cap, f, v)
         cap.installed_on = performed_on
         cap.is_original = False
-        cap.baseline = snapshot
         cap.save()
     ReplacedPart.objects.bulk_create(parts)
+    if replacements:
+        units_mark_changed(unit_ids=[unit.pk])
     return record

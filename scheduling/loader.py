@@ -98,7 +98,7 @@ CAPACITOR_ROW = np.dtype([
     ("id", "<i8"), ("unit_id", "<i8"), ("position_id", "<i8"), ("capacitance_uf", "<f8"),
     ("rated_voltage_v", "<f8"), ("rated_temp_c", "<f8"), ("rated_life_h", "<f8"), ("esr_ohm", "<f8"),
     ("tan_delta", "<f8"), ("diameter_mm", "<f8"), ("length_mm", "<f8"), ("installed_day", "<f8"),
-    ("is_original", "?"), ("baseline_id", "<i8"),
+    ("is_original", "?"),
 ])
 
 
@@ -117,8 +117,6 @@ def _capacitor_sql(unit_filter_sql):
         col = qn(name)
         if name in ("esr_ohm", "tan_delta"):
             col = f"COALESCE({col}, -1.0)"
-        elif name == "baseline_id":
-            col = f"COALESCE({col}, -1)"
         elif name == "installed_day":
             col = _days_since_epoch_sql(qn("installed_on"))  # a number: no per-row date conversion
         select.append(col)
@@ -292,14 +290,7 @@ def load_fleet(*, unit_ids=None, today, min_history_days=180):
                        dtype=np.int64)
     circuit = {name: np.array([_f(p[6 + j]) for p in pos_rows]) for j, name in enumerate(CIRCUIT_FIELDS)}
 
-    snap_ids = np.unique(caps["baseline_id"][caps["baseline_id"] >= 0]).tolist()
-    sidx = {s: k for k, s in enumerate(snap_ids)}
-    sp = np.zeros((len(snap_ids), H.N_BINS))
-    su = np.zeros((len(snap_ids), H.N_BINS))
-    if snap_ids:
-        for sid, p, q in HistogramSnapshot.objects.filter(pk__in=snap_ids).values_list("pk", "powered", "unpowered"):
-            sp[sidx[sid]] = np.frombuffer(bytes(p), dtype=H.DTYPE)
-            su[sidx[sid]] = np.frombuffer(bytes(q), dtype=H.DTYPE)
+    baseline_index, sp, su = _baselines(caps, filter_ids)
 
     esr0 = caps["esr_ohm"].copy()
     missing = np.isnan(esr0)
@@ -323,7 +314,7 @@ def load_fleet(*, unit_ids=None, today, min_history_days=180):
         rated_temp_c=caps["rated_temp_c"], rated_life_h=caps["rated_life_h"], esr0_ohm=esr0,
         diameter_mm=caps["diameter_mm"], length_mm=caps["length_mm"], installed_day=caps["installed_day"],
         is_original=caps["is_original"],
-        baseline_index=_index_of(np.array(snap_ids, dtype=np.int64), caps["baseline_id"]),
+        baseline_index=baseline_index,
         pos_id=np.array([p[0] for p in pos_rows], dtype=np.int64),
         pos_designator=[p[2] for p in pos_rows],
         pos_role=np.array([ROLE_CODES.get(p[3], 0) for p in pos_rows], dtype=np.int64),
@@ -331,6 +322,31 @@ def load_fleet(*, unit_ids=None, today, min_history_days=180):
         pos_partner=partner, pos_circuit=circuit,
         snap_powered=sp, snap_unpowered=su,
     )
+
+
+def _baselines(caps, unit_ids):
+    """Each replaced part's snapshot: the one its unit took on the part's
+    install date.  Returns (index into the snapshots or -1, powered, unpowered)."""
+    replaced = ~caps["is_original"]
+    n = caps["id"].size
+    if not replaced.any():
+        return np.full(n, -1, dtype=np.int64), np.zeros((0, H.N_BINS)), np.zeros((0, H.N_BINS))
+    qs = HistogramSnapshot.objects.order_by("unit_id", "taken_on")
+    if unit_ids is not None:
+        qs = qs.filter(unit_id__in=np.unique(caps["unit_id"][replaced]).tolist())
+    rows = list(qs.values_list("unit_id", "taken_on", "powered", "unpowered"))
+    sp = H.stack_from_bytes([r[2] for r in rows]) if rows else np.zeros((0, H.N_BINS))
+    su = H.stack_from_bytes([r[3] for r in rows]) if rows else np.zeros((0, H.N_BINS))
+    # (unit, day) as one sortable key; days since 1970 fit in 2**20 for millennia.
+    snap_key = np.array([r[0] * (1 << 20) + (r[1] - _EPOCH).days for r in rows], dtype=np.int64)
+    cap_key = caps["unit_id"] * (1 << 20) + np.floor(caps["installed_day"]).astype(np.int64)
+    order = np.argsort(snap_key, kind="stable")
+    found = _index_of(snap_key[order], cap_key)
+    index = np.where(replaced & (found >= 0), order[np.maximum(found, 0)] if order.size else -1, -1)
+    return index.astype(np.int64), sp, su
+
+
+_EPOCH = dt.date(1970, 1, 1)
 
 
 def active_policy():

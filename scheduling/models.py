@@ -20,6 +20,15 @@ class ThermalHistory(models.Model):
     accounted_until = models.DateTimeField(help_text="Storage and hires are counted up to this moment.")
     last_powered_at = models.DateTimeField(null=True, blank=True,
                                            help_text="End of the last hire with powered hours.")
+    records_version = models.PositiveIntegerField(
+        default=0, help_text="The unit's records_version these histograms were brought up to date with.")
+    rentals_counted = models.PositiveIntegerField(
+        default=0, help_text="Closed hires counted (those checked out before accounted_until).")
+    powered_hours_counted = models.FloatField(default=0.0, help_text="hours; their powered hours summed")
+    basis = models.CharField(
+        max_length=200, blank=True,
+        help_text="The unit's own figures the history was built from (year made, joining date, prior use, the "
+                  "model's internal rise); a change means a rebuild.")
     updated_at = models.DateTimeField(auto_now=True)
 
     def __str__(self):
@@ -27,16 +36,20 @@ class ThermalHistory(models.Model):
 
 
 class HistogramSnapshot(models.Model):
-    """A unit's histograms at the moment parts were replaced: a new part's
-    damage is counted from here on (current minus snapshot)."""
+    """A unit's histograms at the moment parts were fitted: a part fitted on
+    ``taken_on`` counts its damage from here on (current minus snapshot).
+    Kept by the engine for every date on which one of the unit's fitted parts
+    went in (see scheduling/thermal.py)."""
 
     unit = models.ForeignKey(Unit, on_delete=models.CASCADE, related_name="snapshots")
-    taken_at = models.DateTimeField()
+    taken_on = models.DateField(help_text="Install date of the parts counted from this snapshot.")
+    taken_at = models.DateTimeField(help_text="The moment taken as that date's install time (noon, local).")
     powered = models.BinaryField()
     unpowered = models.BinaryField()
 
     class Meta:
-        ordering = ["unit", "taken_at"]
+        ordering = ["unit", "taken_on"]
+        constraints = [models.UniqueConstraint(fields=["unit", "taken_on"], name="snapshot_one_per_day")]
 
 
 class UnitForecast(models.Model):

@@ -1,7 +1,7 @@
 """Life-engine services: load the fleet, forecast it, store the results.
 
-``forecast_refresh`` is the one entry point (commands, tasks, the check-in
-service and the views call it).  It reads each table once, computes with
+``forecast_refresh`` is the one entry point (commands, tasks and the
+workflows in ``front.workflows`` call it).  It reads each table once, computes with
 :mod:`scheduling.forecast` and upserts one ``UnitForecast`` per unit, so running
 it twice leaves the same rows.
 """
@@ -15,10 +15,12 @@ from django.utils import timezone
 
 from fleet.models import Unit
 
-from .forecast import EngineOptions, Policy, compute, day_to_date
-from .forecast import ROLE_NAMES
+from .days import day_to_date
+from .forecast import EngineOptions, Policy, compute
 from .loader import active_policy, load_fleet
 from .models import UnitForecast
+from .thermal import thermal_sync
+from .thresholds import ROLE_NAMES
 
 #: Layout of the per-position results stored in UnitForecast.positions.
 #: Single precision keeps six significant digits, more than the model's
@@ -185,9 +187,12 @@ def _store(run):
 def forecast_refresh(*, unit_ids=None, today=None, **options):
     """Recompute and store the forecast of the given units (all when None).
 
-    Idempotent: the stored row of each unit is overwritten.  Retired units are
-    not forecast and their old results are removed.  Returns the ForecastRun.
+    First brings the thermal history of any of them whose records changed (or
+    that has none yet) up to date (``thermal.thermal_sync``).  Idempotent: the
+    stored row of each unit is overwritten.  Retired units are not forecast and
+    their old results are removed.  Returns the ForecastRun.
     """
+    thermal_sync(unit_ids=unit_ids)
     run = forecast_compute(unit_ids=unit_ids, today=today, **options)
     # No savepoint: inside a caller's transaction (check-in) a failure here
     # fails the whole of it, and it saves two round trips per refresh.

@@ -9,22 +9,24 @@ from django.db import OperationalError
 from django.utils import timezone
 
 from .services import forecast_refresh
-from .thermal import thermal_advance_storage
+from .thermal import thermal_sync
 
 RETRY = dict(autoretry_for=(OperationalError,), retry_backoff=True, max_retries=5, acks_late=True)
 
 
 @shared_task(name="scheduling.fleet_nightly_refresh", soft_time_limit=1200, time_limit=1320, **RETRY)
 def fleet_nightly_refresh():
-    """Count storage up to now for every unit, then recompute the whole fleet's forecast."""
-    advanced = thermal_advance_storage(until=timezone.now())
+    """Bring every thermal history up to date with the register and count
+    storage up to now, then recompute the whole fleet's forecast."""
+    synced = thermal_sync(until=timezone.now(), advance_storage=True)
     run = forecast_refresh()
-    return {"advanced": advanced, "forecast": run.fleet.n_units}
+    return {"changed": synced.changed, "advanced": synced.advanced, "forecast": run.fleet.n_units}
 
 
 @shared_task(name="scheduling.unit_forecast_refresh", soft_time_limit=60, time_limit=90, **RETRY)
 def unit_forecast_refresh(unit_id):
-    """Recompute one unit's forecast (after an edit in the admin or an import)."""
+    """Bring one unit's thermal history up to date with its records and
+    recompute its forecast (e.g. after its dates were edited in the admin)."""
     if not isinstance(unit_id, int) or isinstance(unit_id, bool) or unit_id <= 0:
         raise ValueError(f"unit_id must be a positive whole number, not {unit_id!r}")
     run = forecast_refresh(unit_ids=[unit_id])

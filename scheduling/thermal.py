@@ -8,21 +8,31 @@ A unit's history runs from its date of manufacture (1 July of the year made):
   rise; the rest of the hire unpowered at venue ambient), and storage between
   hires at the home location's temperature for that calendar month.
 
-The incremental services (``thermal_add_rental``, ``thermal_advance_storage``)
-and the from-scratch ``thermal_rebuild`` give the same histograms; a test holds
-them to it.  Queries are per table, never per unit.
+The register never calls the engine.  It raises a unit's ``records_version``
+whenever the records its exposure comes from change; ``thermal_sync`` compares
+that with the version each history was brought up to date with, and for each
+unit that differs (or has no history yet) either adds the hires closed since
+the history's end (the usual case: a check-in) or rebuilds the history from
+the records (a late-entered or edited hire, new dates, another home, an
+import).  It also keeps a snapshot for every date on which one of the unit's
+fitted parts went in.  The nightly job adds storage up to now
+(``thermal_advance_storage``).
+
+The incremental steps and the from-scratch ``thermal_rebuild`` give the same
+histograms; a test holds them to it.  Queries are per table, never per unit.
 """
 
 import datetime as dt
 from collections import defaultdict
+from dataclasses import dataclass
 
 import numpy as np
 from django.db import transaction
-from django.db.models import Avg
+from django.db.models import Avg, Count, F, Q, Sum
 from django.db.models.functions import ExtractMonth
 from django.utils import timezone
 
-from fleet.models import Location, Rental, TemperatureSample, Unit
+from fleet.models import Location, Rental, TemperatureSample, Unit, UnitCapacitor
 
 from . import histogram as H
 from .models import HistogramSnapshot, ThermalHistory
@@ -37,6 +47,11 @@ def manufactured_at(year_made):
 
 def joined_at(joined_on):
     return dt.datetime.combine(joined_on, dt.time(0, 0), tzinfo=dt.timezone.utc)
+
+
+def fitted_at(installed_on):
+    """The moment taken as the install time of parts fitted on a date: noon, local time."""
+    return timezone.make_aware(dt.datetime.combine(installed_on, dt.time(12, 0)))
 
 
 # --- location temperatures -------------------------------------------------
@@ -121,7 +136,8 @@ def build_history(unit, internal_rise_k, rentals, monthly_temps_c, until, snapsh
     ``rentals`` are the unit's closed hires in order of check-out.  Returns
     ``(powered, unpowered, accounted_until, last_powered_at, snapshots)`` where
     ``snapshots`` maps each of ``snapshot_times`` to the (powered, unpowered)
-    histograms at that moment.
+    histograms at that moment.  The hires counted are those checked out before
+    ``until`` (see :func:`counted_rentals`).
     """
     powered, unpowered = H.empty(), H.empty()
     add_prior_use(powered, unpowered, unit, internal_rise_k)
@@ -158,22 +174,167 @@ def build_history(unit, internal_rise_k, rentals, monthly_temps_c, until, snapsh
     return powered, unpowered, cursor, last_powered, snaps
 
 
+def exposure_basis(unit, internal_rise_k):
+    """The unit's own figures a history is built from, as text: a history built
+    from other figures must be rebuilt, not extended."""
+    return (f"{unit.year_made}|{unit.joined_on.isoformat()}|{float(unit.prior_powered_h_per_year)!r}|"
+            f"{float(unit.prior_ambient_c)!r}|{float(unit.prior_storage_c)!r}|{float(internal_rise_k)!r}")
+
+
+def counted_rentals(rentals, until):
+    """(number, powered hours) of the closed hires a history built to ``until`` counts."""
+    counted = [r for r in rentals if r.out_at < until]
+    return len(counted), float(sum(r.powered_hours for r in counted))
+
+
 # --- services ----------------------------------------------------------------
+
+@dataclass
+class SyncReport:
+    """What :func:`thermal_sync` did, in numbers."""
+
+    started: int = 0       # histories created from the prior-use assumption alone
+    extended: int = 0      # histories that took the hires closed since their end
+    rebuilt: int = 0       # histories rebuilt from the records
+    snapshots: int = 0     # snapshots written for newly fitted parts
+    advanced: int = 0      # histories whose storage was counted up to ``until``
+
+    @property
+    def changed(self):
+        return self.started + self.extended + self.rebuilt
+
 
 def _units(unit_ids):
     return list(Unit.objects.filter(pk__in=unit_ids).select_related("gear_model"))
 
 
+def _history_fields(history, unit, powered, unpowered, accounted, last_powered, counted):
+    history.powered, history.unpowered = H.to_bytes(powered), H.to_bytes(unpowered)
+    history.accounted_until, history.last_powered_at = accounted, last_powered
+    history.rentals_counted, history.powered_hours_counted = counted
+    history.records_version = unit.records_version
+    history.basis = exposure_basis(unit, unit.gear_model.internal_rise_k)
+
+
+@transaction.atomic
+def thermal_sync(*, unit_ids=None, until=None, advance_storage=False):
+    """Bring the engine's histories up to date with the register.
+
+    For every unit (of ``unit_ids``; all when None) that is not retired and
+    whose history is missing or older than its records (``records_version``):
+
+    - no history and no closed hire: start one from the prior-use assumption;
+    - the hires counted so far unchanged (same number and powered hours): add
+      the hires closed since, in order, with the storage between them;
+    - otherwise: rebuild from the records up to ``until`` (default now; a unit
+      out on hire up to its check-out).
+
+    Snapshots are written for install dates of fitted parts that have none.
+    With ``advance_storage`` every history not out on hire then counts storage
+    up to ``until`` (the nightly job).  Idempotent; a fixed number of queries
+    whatever the number of units, plus one small one per unit changed.
+    """
+    until = until or timezone.now()
+    report = SyncReport()
+    units = Unit.objects.exclude(status=Unit.Status.RETIRED).filter(
+        Q(thermal__isnull=True) | ~Q(thermal__records_version=F("records_version")))
+    if unit_ids is not None:
+        units = units.filter(pk__in=list(unit_ids))
+    stale = list(units.select_related("gear_model"))
+    if stale:
+        _sync_units(stale, until, report)
+    if advance_storage:
+        report.advanced = thermal_advance_storage(unit_ids=unit_ids, until=until)
+    return report
+
+
+def _sync_units(units, until, report):
+    ids = [u.pk for u in units]
+    histories = {h.unit_id: h for h in ThermalHistory.objects.select_for_update().filter(unit_id__in=ids)}
+    # The hires each history counts now: same number and powered hours as when
+    # it was last brought up to date means only hires after its end are new.
+    counted = {
+        row["unit_id"]: (row["n"], row["p"] or 0.0)
+        for row in Rental.objects.filter(unit_id__in=ids, in_at__isnull=False, unit__thermal__isnull=False,
+                                         out_at__lt=F("unit__thermal__accounted_until"))
+        .values("unit_id").annotate(n=Count("id"), p=Sum("powered_hours")).order_by()
+    }
+    has_closed = set(Rental.objects.filter(unit_id__in=ids, in_at__isnull=False)
+                     .values_list("unit_id", flat=True).distinct())
+    wanted = defaultdict(set)  # unit -> install dates of its replaced parts
+    for unit_id, day in (UnitCapacitor.objects.filter(unit_id__in=ids, is_original=False)
+                         .values_list("unit_id", "installed_on").distinct()):
+        wanted[unit_id].add(day)
+    have = defaultdict(set)
+    for unit_id, day in HistogramSnapshot.objects.filter(unit_id__in=ids).values_list("unit_id", "taken_on"):
+        have[unit_id].add(day)
+
+    start, extend, rebuild = [], [], []
+    for unit in units:
+        h = histories.get(unit.pk)
+        if h is None:
+            (rebuild if unit.pk in has_closed else start).append(unit)
+            continue
+        n, p = counted.get(unit.pk, (0, 0.0))
+        same = (n == h.rentals_counted and abs(p - h.powered_hours_counted) <= 1e-6 * max(1.0, abs(p))
+                and h.basis == exposure_basis(unit, unit.gear_model.internal_rise_k))
+        (extend if same else rebuild).append(unit)
+
+    if start:
+        report.started = thermal_start(unit_ids=[u.pk for u in start])
+    for unit in extend:
+        if not _extend(unit, histories[unit.pk]):
+            rebuild.append(unit)
+        else:
+            report.extended += 1
+    if rebuild:
+        report.rebuilt = thermal_rebuild(unit_ids=[u.pk for u in rebuild], until=until)
+    rebuilt = {u.pk for u in rebuild}
+    for unit in units:
+        if unit.pk in rebuilt:
+            continue  # the rebuild wrote every snapshot the unit needs
+        missing = sorted(wanted.get(unit.pk, set()) - have.get(unit.pk, set()))
+        for day in missing:
+            thermal_snapshot(unit_id=unit.pk, on=day)
+            report.snapshots += 1
+
+
+def _extend(unit, history):
+    """Add the unit's hires closed since its history's end; False if one
+    starts before that end (the history must be rebuilt instead)."""
+    new = list(Rental.objects.filter(unit_id=unit.pk, in_at__isnull=False, out_at__gte=history.accounted_until)
+               .order_by("out_at").only("out_at", "in_at", "powered_hours", "venue_ambient_c"))
+    temps = location_monthly_temps([unit.home_location_id])[unit.home_location_id]
+    powered, unpowered = H.from_bytes(history.powered), H.from_bytes(history.unpowered)
+    accounted, last_powered = history.accounted_until, history.last_powered_at
+    n, p = history.rentals_counted, history.powered_hours_counted
+    for rental in new:
+        if rental.out_at < accounted:
+            return False
+        add_storage(unpowered, accounted, rental.out_at, temps)
+        add_rental(powered, unpowered, rental.elapsed_hours, rental.powered_hours, rental.venue_ambient_c,
+                   unit.gear_model.internal_rise_k)
+        accounted = rental.in_at
+        n, p = n + 1, p + rental.powered_hours
+        if rental.powered_hours > 0:
+            last_powered = rental.in_at
+    _history_fields(history, unit, powered, unpowered, accounted, last_powered, (n, p))
+    history.save()
+    return True
+
+
 @transaction.atomic
 def thermal_start(*, unit_ids):
-    """Create the thermal history of units that have none (prior use only)."""
+    """Create the thermal history of units that have none (prior use only,
+    counted up to the day each joined the fleet)."""
     have = set(ThermalHistory.objects.filter(unit_id__in=unit_ids).values_list("unit_id", flat=True))
     rows = []
     for unit in _units([u for u in unit_ids if u not in have]):
         powered, unpowered = H.empty(), H.empty()
         add_prior_use(powered, unpowered, unit, unit.gear_model.internal_rise_k)
-        rows.append(ThermalHistory(unit=unit, powered=H.to_bytes(powered), unpowered=H.to_bytes(unpowered),
-                                   accounted_until=joined_at(unit.joined_on)))
+        h = ThermalHistory(unit=unit)
+        _history_fields(h, unit, powered, unpowered, joined_at(unit.joined_on), None, (0, 0.0))
+        rows.append(h)
     ThermalHistory.objects.bulk_create(rows, batch_size=1000)
     return len(rows)
 
@@ -203,46 +364,28 @@ def thermal_advance_storage(*, unit_ids=None, until=None):
 
 
 @transaction.atomic
-def thermal_add_rental(*, rental, internal_rise_k):
-    """Add a closed hire to its unit's histograms (the check-in step).
-
-    A hire that starts before what is already counted (entered late) makes
-    the unit's history be rebuilt from its records instead.
-    """
-    history = ThermalHistory.objects.select_for_update().filter(unit_id=rental.unit_id).first()
-    if history is None or rental.out_at < history.accounted_until:
-        thermal_rebuild(unit_ids=[rental.unit_id])
-        return
-    unit = Unit.objects.get(pk=rental.unit_id)
-    temps = location_monthly_temps([unit.home_location_id])[unit.home_location_id]
-    powered, unpowered = H.from_bytes(history.powered), H.from_bytes(history.unpowered)
-    add_storage(unpowered, history.accounted_until, rental.out_at, temps)
-    add_rental(powered, unpowered, rental.elapsed_hours, rental.powered_hours, rental.venue_ambient_c, internal_rise_k)
-    history.powered, history.unpowered = H.to_bytes(powered), H.to_bytes(unpowered)
-    history.accounted_until = rental.in_at
-    if rental.powered_hours > 0:
-        history.last_powered_at = rental.in_at
-    history.save()
-
-
-@transaction.atomic
-def thermal_snapshot(*, unit_id, at):
-    """Store the unit's histograms as they were at ``at`` (parts replaced then)."""
+def thermal_snapshot(*, unit_id, on):
+    """Store the unit's histograms at the install time of parts fitted on ``on``
+    (a date), built from its records; replaces an earlier one for that date."""
+    at = fitted_at(on)
     unit = _units([unit_id])[0]
     rentals = list(Rental.objects.filter(unit_id=unit_id, in_at__isnull=False, out_at__lt=at).order_by("out_at"))
     temps = location_monthly_temps([unit.home_location_id])[unit.home_location_id]
     _, _, _, _, snaps = build_history(unit, unit.gear_model.internal_rise_k, rentals, temps, at, [at])
     powered, unpowered = snaps[at]
-    return HistogramSnapshot.objects.create(unit_id=unit_id, taken_at=at, powered=H.to_bytes(powered),
-                                            unpowered=H.to_bytes(unpowered))
+    snapshot, _ = HistogramSnapshot.objects.update_or_create(
+        unit_id=unit_id, taken_on=on,
+        defaults={"taken_at": at, "powered": H.to_bytes(powered), "unpowered": H.to_bytes(unpowered)})
+    return snapshot
 
 
 @transaction.atomic
 def thermal_rebuild(*, unit_ids=None, until=None):
-    """Rebuild histories (and the units' snapshots) from the records.
+    """Rebuild histories and snapshots from the records.
 
     ``until`` defaults to now; a unit out on hire is counted to its check-out.
-    Four queries whatever the number of units, plus the bulk writes.
+    A snapshot is kept for every install date of the unit's replaced parts.
+    Five queries whatever the number of units, plus the bulk writes.
     """
     until = until or timezone.now()
     units = list(Unit.objects.select_related("gear_model") if unit_ids is None else _units(unit_ids))
@@ -256,28 +399,37 @@ def thermal_rebuild(*, unit_ids=None, until=None):
             open_out[r.unit_id] = r.out_at
         else:
             rentals_by_unit[r.unit_id].append(r)
-    snaps_by_unit = defaultdict(list)
-    for s in HistogramSnapshot.objects.filter(unit_id__in=ids).only("id", "unit_id", "taken_at"):
-        snaps_by_unit[s.unit_id].append(s)
+    days_by_unit = defaultdict(set)
+    for unit_id, day in (UnitCapacitor.objects.filter(unit_id__in=ids, is_original=False)
+                         .values_list("unit_id", "installed_on").distinct()):
+        days_by_unit[unit_id].add(day)
+    snaps_by_unit = defaultdict(dict)
+    for s in HistogramSnapshot.objects.filter(unit_id__in=ids).only("id", "unit_id", "taken_on", "taken_at"):
+        snaps_by_unit[s.unit_id][s.taken_on] = s
     temps = location_monthly_temps({u.home_location_id for u in units})
     existing = {h.unit_id: h for h in ThermalHistory.objects.filter(unit_id__in=ids).only("id", "unit_id")}
-    new_rows, changed, changed_snaps = [], [], []
+    new_rows, changed, new_snaps, changed_snaps = [], [], [], []
     for unit in units:
         end = min(until, open_out.get(unit.pk, until))
-        snaps = snaps_by_unit.get(unit.pk, [])
+        days = sorted(days_by_unit.get(unit.pk, ()))
+        moments = {day: fitted_at(day) for day in days}
+        rentals = rentals_by_unit.get(unit.pk, [])
         powered, unpowered, accounted, last_powered, snap_hists = build_history(
-            unit, unit.gear_model.internal_rise_k, rentals_by_unit.get(unit.pk, []),
-            temps[unit.home_location_id], end, [s.taken_at for s in snaps],
+            unit, unit.gear_model.internal_rise_k, rentals, temps[unit.home_location_id], end,
+            list(moments.values()),
         )
-        for s in snaps:
-            s.powered, s.unpowered = (H.to_bytes(x) for x in snap_hists[s.taken_at])
-            changed_snaps.append(s)
+        for day, at in moments.items():
+            s = snaps_by_unit[unit.pk].get(day) or HistogramSnapshot(unit_id=unit.pk, taken_on=day)
+            s.taken_at = at
+            s.powered, s.unpowered = (H.to_bytes(x) for x in snap_hists[at])
+            (changed_snaps if s.pk else new_snaps).append(s)
         h = existing.get(unit.pk) or ThermalHistory(unit_id=unit.pk)
-        h.powered, h.unpowered = H.to_bytes(powered), H.to_bytes(unpowered)
-        h.accounted_until, h.last_powered_at = accounted, last_powered
+        _history_fields(h, unit, powered, unpowered, accounted, last_powered, counted_rentals(rentals, accounted))
         (changed if h.pk else new_rows).append(h)
     ThermalHistory.objects.bulk_create(new_rows, batch_size=1000)
-    ThermalHistory.objects.bulk_update(changed, ["powered", "unpowered", "accounted_until", "last_powered_at"],
-                                       batch_size=1000)
-    HistogramSnapshot.objects.bulk_update(changed_snaps, ["powered", "unpowered"], batch_size=1000)
+    ThermalHistory.objects.bulk_update(
+        changed, ["powered", "unpowered", "accounted_until", "last_powered_at", "rentals_counted",
+                  "powered_hours_counted", "records_version", "basis"], batch_size=1000)
+    HistogramSnapshot.objects.bulk_create(new_snaps, batch_size=1000)
+    HistogramSnapshot.objects.bulk_update(changed_snaps, ["taken_at", "powered", "unpowered"], batch_size=1000)
     return len(units)

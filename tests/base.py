@@ -10,7 +10,7 @@ from django.contrib.auth import get_user_model
 
 from fleet.models import GearModel, Location, Position, Role
 from fleet.roles import DESK, MANAGER, TECHNICIAN, ensure_groups
-from fleet.services import unit_create
+from front.workflows import unit_create
 
 PASSWORD = "not-a-real-password-42"
 

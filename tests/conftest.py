@@ -39,3 +39,10 @@ def redis_url():
             pytest.fail(message + " (CI must provide it)")
         pytest.skip(message)
     return url
+
+
+def pytest_configure(config):
+    # Password hashing is deliberately slow; the tests log users in by the hundred.
+    from django.conf import settings
+
+    settings.PASSWORD_HASHERS = ["django.contrib.auth.hashers.MD5PasswordHasher"]

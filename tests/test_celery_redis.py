@@ -12,7 +12,7 @@ import pytest
 from celery import Celery
 from django.db import connection
 
-from fleet import services
+from front import workflows as services
 from fleet.models import GearModel, Location, Position
 from scheduling.models import UnitForecast
 from scheduling.tasks import unit_forecast_refresh

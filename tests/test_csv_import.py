@@ -18,7 +18,8 @@ from django.core.files.uploadedfile import SimpleUploadedFile
 from django.core.management import CommandError, call_command
 
 from fleet import csvio
-from fleet.csvio import CsvImportError, export_csv, import_csv
+from fleet.csvio import CsvImportError, export_csv
+from front.workflows import import_csv
 from fleet.models import GearModel, Location, Position, TemperatureSample, Unit, UnitCapacitor
 from scheduling.models import ThermalHistory
 
@@ -360,7 +361,7 @@ def test_five_good_rows_and_one_bad_write_nothing(base, tmp_path):
 
 
 def test_a_bad_row_in_a_later_batch_rolls_back_the_batches_already_written(base, tmp_path, monkeypatch):
-    monkeypatch.setattr(csvio, "BATCH_SIZE", 2)
+    monkeypatch.setattr(csvio.importer, "BATCH_SIZE", 2)
     rows = [f"NB-{i:04d},,Brindle Acoustics,Nimbus 4,1981,2019-03-01,Main Store,,,,,," for i in range(7)]
     rows.append("NB-0100,,Brindle Acoustics,Nimbus 4,1981,2019-03-01,Nowhere,,,,,,")
     path = write(tmp_path, "units.csv", UNITS.splitlines()[0] + "\n" + "\n".join(rows) + "\n")

@@ -13,7 +13,7 @@ import tracemalloc
 
 import pytest
 
-from fleet.csvio import import_csv
+from front.workflows import import_csv
 from fleet.models import GearModel, Location, Position, TemperatureSample, Unit, UnitCapacitor
 from scheduling.models import ThermalHistory
 

@@ -75,7 +75,7 @@ class DemoFleetTests(TestCase):
             pos.clean_fields(exclude=["gear_model"])
             pos.clean()
         for cap in UnitCapacitor.objects.all():
-            cap.clean_fields(exclude=["unit", "position", "baseline"])
+            cap.clean_fields(exclude=["unit", "position"])
             cap.clean()
 
     def test_makers_and_models_come_from_the_scenario(self):
@@ -163,7 +163,10 @@ class DemoFleetTests(TestCase):
         self.assertGreaterEqual(recaps.count(), 10)
         replaced = UnitCapacitor.objects.filter(is_original=False)
         self.assertTrue(replaced.exists())
-        self.assertFalse(replaced.filter(baseline__isnull=True).exists())
+        # Each replaced part counts its damage from a snapshot taken on its install date.
+        snapshots = set(HistogramSnapshot.objects.values_list("unit_id", "taken_on"))
+        for unit_id, day in replaced.values_list("unit_id", "installed_on"):
+            self.assertIn((unit_id, day), snapshots)
         self.assertTrue(replaced.filter(rated_temp_c=105).exists())
         self.assertTrue(Measurement.objects.filter(quantity=Measurement.Quantity.RAIL).exists())
         # No recap while the unit was out on hire.
@@ -175,7 +178,8 @@ class DemoFleetTests(TestCase):
     def test_every_unit_has_a_thermal_history_to_today(self):
         self.assertEqual(ThermalHistory.objects.count(), Unit.objects.count())
         self.assertEqual(HistogramSnapshot.objects.count(),
-                         UnitCapacitor.objects.filter(is_original=False).values("baseline").distinct().count())
+                         UnitCapacitor.objects.filter(is_original=False)
+                         .values("unit_id", "installed_on").distinct().count())
         out = set(Unit.objects.filter(status=Unit.Status.OUT).values_list("pk", flat=True))
         for history in ThermalHistory.objects.all():
             if history.unit_id not in out:

@@ -15,7 +15,7 @@ import pytest
 from django.core.management import CommandError, call_command
 from django.utils import timezone
 
-from fleet import services
+from front import workflows as services
 from fleet.models import GearModel, Location, MaintenancePolicy, Position, Unit
 from scheduling import histogram as H
 from scheduling import physics, thermal

@@ -8,7 +8,7 @@ from django.core.management.base import CommandError
 from django.db.models import Count
 from django.test import TestCase
 
-from fleet.management.commands.make_fleet import population_roles
+from scheduling.management.commands.make_fleet import population_roles
 from fleet.models import GearModel, Position, Rental, Role, Unit, UnitCapacitor
 from scheduling import histogram as H
 from scheduling.models import ThermalHistory

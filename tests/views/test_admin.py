@@ -54,7 +54,7 @@ def test_a_service_record_page_shows_its_replaced_parts_and_measurements(client,
     import datetime as dt
 
     from fleet.models import Measurement
-    from fleet.services import service_record_recap
+    from front.workflows import service_record_recap
 
     record = service_record_recap(unit_id=fleet.unit.pk, performed_on=dt.date(2024, 3, 1),
                                   replacements={"C7": {"rated_life_h": 4000}}, technician_name="Ada Bench")
@@ -71,7 +71,7 @@ def test_hires_are_read_only_in_the_admin(client, fleet):
 
     from django.utils import timezone
 
-    from fleet.services import rental_check_out
+    from front.workflows import rental_check_out
 
     rental = rental_check_out(unit_id=fleet.unit.pk, job_ref="JOB-3", out_at=timezone.now() - dt.timedelta(hours=1))
     client.force_login(make_user("superuser", username="root"))

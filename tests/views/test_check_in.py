@@ -7,8 +7,8 @@ from django.urls import reverse
 from django.utils import timezone
 
 from fleet.models import Rental, Unit
-from fleet.services import rental_check_out
-from fleet.views import return_verdict
+from front.workflows import rental_check_out
+from front.views import return_verdict
 from scheduling.models import UnitForecast
 
 URL = reverse("check_in")

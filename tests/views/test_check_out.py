@@ -7,7 +7,7 @@ from django.urls import reverse
 from django.utils import timezone
 
 from fleet.models import Rental, Unit
-from fleet.services import rental_check_out
+from front.workflows import rental_check_out
 from scheduling.models import UnitForecast
 
 URL = reverse("check_out")

@@ -6,7 +6,7 @@ import pytest
 from django.core.files.uploadedfile import SimpleUploadedFile
 from django.urls import reverse
 
-from fleet.forms import CsvUploadForm
+from front.forms import CsvUploadForm
 from fleet.models import GearModel, Location, Unit, UnitCapacitor
 
 pytestmark = pytest.mark.skipif(

@@ -6,7 +6,7 @@ from django.urls import reverse
 from django.utils import timezone
 
 from fleet.models import Unit
-from fleet.services import rental_check_out
+from front.workflows import rental_check_out
 from scheduling.models import UnitForecast
 from tests.base import make_unit
 

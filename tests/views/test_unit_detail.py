@@ -8,8 +8,8 @@ from django.urls import reverse
 from django.utils import timezone
 
 from fleet.models import Measurement, Unit
-from fleet.services import rental_check_in, rental_check_out, service_record_recap
-from fleet.views import format_capacitance
+from front.workflows import rental_check_in, rental_check_out, service_record_recap
+from front.views import format_capacitance
 from scheduling.models import UnitForecast
 
 

@@ -62,7 +62,7 @@ def test_filters_narrow_by_status_model_location_and_forecast(client, users, mix
 
 
 def test_the_list_pages_fifty_units_at_a_time_and_keeps_the_filters(client, users, fleet, monkeypatch):
-    monkeypatch.setattr("fleet.views.UNITS_PER_PAGE", 2)
+    monkeypatch.setattr("front.views.units.UNITS_PER_PAGE", 2)
     for i in range(2, 6):
         make_unit(fleet.gear_model, fleet.location, asset_tag=f"NMB-000{i}")
     client.force_login(users.desk)

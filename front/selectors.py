@@ -1,4 +1,4 @@
-"""Read-only queries for the fleet pages.
+"""Read-only queries for the pages.
 
 Every function here reads; none writes.  Each list query fetches its related
 rows with ``select_related``/``prefetch_related`` so a page costs the same
@@ -9,7 +9,7 @@ from django.db.models import Count, Prefetch, Q
 
 from scheduling.models import UnitForecast
 
-from .models import GearModel, Location, Rental, ServiceRecord, Unit, UnitCapacitor
+from fleet.models import GearModel, Location, Measurement, Rental, ReplacedPart, ServiceRecord, Unit, UnitCapacitor
 
 RENTAL_HISTORY_LENGTH = 20
 
@@ -114,14 +114,10 @@ def unit_detail(asset_tag):
 
 
 def _replaced_qs():
-    from .models import ReplacedPart
-
     return ReplacedPart.objects.select_related("position").order_by("position__designator")
 
 
 def _measurements_qs():
-    from .models import Measurement
-
     return Measurement.objects.select_related("position").order_by("quantity", "position__designator", "rail_name")
 
 

@@ -13,7 +13,7 @@ from django.utils import timezone
 from scheduling.models import UnitForecast
 
 from . import selectors
-from .models import AMBIENT_MAX_C, AMBIENT_MIN_C, Unit
+from fleet.models import AMBIENT_MAX_C, AMBIENT_MIN_C, Unit
 
 FUTURE_SLACK = dt.timedelta(minutes=5)
 

@@ -1,17 +1,20 @@
-"""Admin for the fleet register.
+"""The admin: reference data of the register, units, hires and services.
 
 Reference data (locations, gear models and their capacitor positions,
-policies) is edited here.  Units added here get their capacitor population and
-thermal history through the same services the rest of the app uses.  Hires and
-fitted capacitors are shown read-only: they change only through the rental
-desk and recorded services, so the thermal histories stay true.
+policies) is edited here.  A unit added here gets its capacitor population,
+thermal history and forecast at once, as one added by any other way; an edit
+that changes what a unit's exposure is worked out from (its dates, prior use)
+rebuilds its history and forecast, and a change of a model's internal rise
+marks its units changed for the life engine's next refresh.  Hires and fitted
+capacitors are shown read-only: they change only through the rental desk and
+recorded services.
 """
 
 from django.contrib import admin
 from django.urls import reverse
 from django.utils.html import format_html
 
-from .models import (
+from fleet.models import (
     GearModel,
     Location,
     MaintenancePolicy,
@@ -24,8 +27,10 @@ from .models import (
     Unit,
     UnitCapacitor,
 )
-from .services import unit_populate
-from .values import format_capacitance
+from fleet.services import unit_populate, units_mark_changed
+from fleet.values import format_capacitance
+
+from .workflows import unit_refresh
 
 # A location with more samples than this links to the sample list instead of
 # showing them all inline on its page.
@@ -117,6 +122,11 @@ class GearModelAdmin(admin.ModelAdmin):
             _positions=Count("positions", distinct=True), _units=Count("units", distinct=True)
         )
 
+    def save_model(self, request, obj, form, change):
+        super().save_model(request, obj, form, change)
+        if change and "internal_rise_k" in form.changed_data:
+            units_mark_changed(gear_model_ids=[obj.pk])
+
     @admin.display(description="positions", ordering="_positions")
     def position_count(self, obj):
         return obj._positions
@@ -205,13 +215,18 @@ class UnitAdmin(admin.ModelAdmin):
         # A new unit gets its capacitors from its model when it is saved.
         return super().get_inline_instances(request, obj) if obj is not None else []
 
+    #: Fields whose change rewrites the unit's past exposure.
+    EXPOSURE_FIELDS = ("joined_on", "prior_powered_h_per_year", "prior_ambient_c", "prior_storage_c")
+
     def save_model(self, request, obj, form, change):
         super().save_model(request, obj, form, change)
         if not change:
-            from scheduling.thermal import thermal_start
-
             unit_populate(units=[obj])
-            thermal_start(unit_ids=[obj.pk])
+        elif set(form.changed_data) & set(self.EXPOSURE_FIELDS):
+            units_mark_changed(unit_ids=[obj.pk])
+        else:
+            return
+        unit_refresh(unit_id=obj.pk)
 
 
 # --- hires -----------------------------------------------------------------------

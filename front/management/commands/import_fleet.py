@@ -12,7 +12,8 @@ import os
 
 from django.core.management.base import BaseCommand, CommandError
 
-from fleet.csvio import IMPORT_ORDER, CsvImportError, detect_kind, import_csv
+from fleet.csvio import IMPORT_ORDER, CsvImportError, detect_kind
+from front.workflows import import_csv
 
 
 class Command(BaseCommand):

@@ -30,7 +30,7 @@ from fleet.models import GearModel, Location, Position, Rental, Role, Unit, Unit
 from fleet.services import RATING_FIELDS
 from scheduling import histogram as H
 from scheduling.models import ThermalHistory
-from scheduling.thermal import add_prior_use, joined_at, month_hours
+from scheduling.thermal import add_prior_use, exposure_basis, joined_at, month_hours
 
 MAKER = "Synthetic Works"
 TAG_PREFIX = "SYN-"
@@ -303,12 +303,17 @@ class Command(BaseCommand):
                   np.maximum(storage, 0.0).ravel())
         last_powered = np.full(units, -1, dtype=np.int64)
         np.maximum.at(last_powered, r_unit[powered > 0], in_s[powered > 0])
+        # What the engine checks to see that nothing changed since (thermal_sync).
+        counted = per.sum(axis=1).tolist()
+        counted_h = np.bincount(r_unit, weights=powered, minlength=units).tolist()
         histories = [
             ThermalHistory(
                 unit_id=u.pk, powered=H.to_bytes(powered_h[k]), unpowered=H.to_bytes(unpowered_h[k]),
                 accounted_until=until,
                 last_powered_at=(dt.datetime.fromtimestamp(int(last_powered[k]), tz=dt.timezone.utc)
                                  if last_powered[k] >= 0 else None),
+                records_version=u.records_version, rentals_counted=counted[k], powered_hours_counted=counted_h[k],
+                basis=exposure_basis(u, rise[k]),
             )
             for k, u in enumerate(unit_objs)
         ]

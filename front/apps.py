@@ -1,0 +1,6 @@
+from django.apps import AppConfig
+
+
+class FrontConfig(AppConfig):
+    name = "front"
+    verbose_name = "Pages and workflows"

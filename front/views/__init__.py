@@ -1,0 +1,16 @@
+"""Pages: start page, units, the rental desk, the workshop queue and the
+manager's CSV import and export, one module per area.
+
+Every page needs a login.  Desk pages are for the rental desk and managers,
+workshop pages for technicians and managers, import and export for managers;
+a superuser holds every role.  Writes go through ``front.workflows``; reads
+through ``front.selectors``.
+"""
+
+from ..workflows import return_verdict  # noqa: F401  (the desk's verdict, worded)
+from .data import csv_export, csv_import, import_order  # noqa: F401
+from .desk import check_in, check_out, desk_scan  # noqa: F401
+from .display import capacitor_rows, forecast_display, format_capacitance, hazard_words  # noqa: F401
+from .home import home  # noqa: F401
+from .units import UNITS_PER_PAGE, unit_detail, unit_list  # noqa: F401
+from .workshop import workshop  # noqa: F401

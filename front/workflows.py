@@ -1,0 +1,147 @@
+"""Workflows that span the register and the life engine.
+
+Each is one function that pages, management commands, Celery tasks and tests
+call alike, in one transaction:
+
+- ``unit_create``: add a unit with its capacitor population and start its
+  thermal history; ``unit_refresh``: bring one unit's history and forecast
+  up to date after an edit;
+- ``rental_check_out``: the desk hands a unit out (register only);
+- ``rental_check_in``: the unit comes back: close the hire, add its exposure,
+  recompute the unit's forecast at once and hold it when it is due, overdue or
+  came back with a fault; ``return_verdict`` words the answer for the desk;
+- ``service_record_recap``: record replaced parts, bring the history and its
+  snapshots up to date and recompute the forecast;
+- ``import_csv``: import one register file, then bring every history it made
+  stale up to date.
+
+The register (``fleet``) knows nothing of the engine; the engine
+(``scheduling``) reads the register.  Only this layer calls both.
+"""
+
+from django.db import transaction
+from django.utils import timezone
+
+from fleet import csvio
+from fleet import services as register
+from fleet.models import ServiceRecord, Unit
+from fleet.services import ServiceError  # noqa: F401  (raised through here; callers catch it from either)
+from scheduling.models import UnitForecast
+from scheduling.services import forecast_refresh
+from scheduling.thermal import thermal_sync
+
+
+@transaction.atomic
+def unit_create(**fields):
+    """Create a unit, copy its model's capacitor population and start its thermal history."""
+    unit = register.unit_add(**fields)
+    thermal_sync(unit_ids=[unit.pk])
+    unit.refresh_from_db()
+    return unit
+
+
+@transaction.atomic
+def unit_refresh(*, unit_id):
+    """Bring one unit's thermal history up to date with its records and
+    recompute its forecast (after an edit of its dates or prior use)."""
+    forecast_refresh(unit_ids=[unit_id])
+
+
+def rental_check_out(*, unit_id, job_ref, out_at=None, expected_ambient_c=25.0, user=None):
+    """Check a unit out on a hire (see ``fleet.services.rental_open``)."""
+    return register.rental_open(unit_id=unit_id, job_ref=job_ref, out_at=out_at,
+                                expected_ambient_c=expected_ambient_c, user=user)
+
+
+@transaction.atomic
+def rental_check_in(*, unit_id, in_at=None, venue_ambient_c, powered_hours=None, meter_reading_h=None,
+                    reported_faults="", user=None):
+    """Check a unit back in: the desk must know at once whether it may go out again.
+
+    Closes the hire (``fleet.services.rental_close``: powered hours from the
+    estimate or the hour meter, faults put the unit on hold), adds the hire to
+    the unit's thermal history, recomputes its forecast as of the check-in day
+    and puts a unit the forecast calls due or overdue on hold for a recap.
+    Returns the closed rental.
+    """
+    rental = register.rental_close(unit_id=unit_id, in_at=in_at, venue_ambient_c=venue_ambient_c,
+                                   powered_hours=powered_hours, meter_reading_h=meter_reading_h,
+                                   reported_faults=reported_faults, user=user)
+    thermal_sync(unit_ids=[unit_id], until=rental.in_at)
+    run = forecast_refresh(unit_ids=[unit_id], today=timezone.localdate(rental.in_at))
+    if (rental.unit.status == Unit.Status.AVAILABLE and run.fleet.n_units
+            and run.result.status[0] in ("due", "overdue")):
+        register.unit_hold(unit_id=unit_id)
+        rental.unit.status = Unit.Status.HOLD
+    return rental
+
+
+def return_verdict(rental, forecast):
+    """May the unit that just came back go out again?
+
+    Reported faults hold it for the bench.  Otherwise the forecast decides:
+    ok or watch may go out (watch with the date the recap is coming up by),
+    due or overdue hold it for a recap; no forecast yet lets it go out.
+    """
+    tag = rental.unit.asset_tag
+    if rental.reported_faults:
+        return {
+            "go": False,
+            "headline": f"{tag}: hold for the bench",
+            "details": ["Faults were reported on return:", rental.reported_faults,
+                        "The unit is on hold until a technician has looked at it."],
+        }
+    if forecast is None:
+        return {"go": True, "headline": f"{tag}: may go out again (no forecast yet)", "details": []}
+    if forecast.status == UnitForecast.Status.OK:
+        return {"go": True, "headline": f"{tag}: may go out again", "details": []}
+    if forecast.status == UnitForecast.Status.WATCH:
+        when = f" by {forecast.due_date:%d %b %Y}" if forecast.due_date else " soon"
+        return {"go": True, "headline": f"{tag}: may go out again; recap coming up{when}",
+                "details": list(forecast.reasons or [])}
+    return {
+        "go": False,
+        "headline": f"{tag}: hold for recap",
+        "details": list(forecast.reasons or [])
+        or [f"The forecast says the unit is {forecast.get_status_display().lower()}."],
+    }
+
+
+@transaction.atomic
+def service_record_recap(*, unit_id, performed_on, replacements, technician=None, technician_name="", notes="",
+                         kind=ServiceRecord.Kind.RECAP, refresh=True):
+    """Record a service in which positions were replaced, then bring the unit's
+    thermal history (and the snapshot the new parts count from) up to date and,
+    with ``refresh``, recompute its forecast.  Returns the service record."""
+    record = register.recap_record(unit_id=unit_id, performed_on=performed_on, replacements=replacements,
+                                   technician=technician, technician_name=technician_name, notes=notes, kind=kind)
+    thermal_sync(unit_ids=[unit_id])
+    if refresh:
+        forecast_refresh(unit_ids=[unit_id])
+    return record
+
+
+class _Rollback(Exception):
+    pass
+
+
+def import_csv(fileobj_or_path, *, name=None, dry_run=False):
+    """Import one register CSV file (``fleet.csvio.import_csv``), then bring
+    the thermal histories it made stale up to date, all in one transaction.
+
+    The report counts the histories started and rebuilt.  With ``dry_run``
+    everything is checked and counted, then rolled back.  Raises
+    ``fleet.csvio.CsvImportError`` with every problem found; nothing is written.
+    """
+    try:
+        with transaction.atomic():
+            report = csvio.import_csv(fileobj_or_path, name=name)
+            synced = thermal_sync()
+            report.histories_started += synced.started
+            report.histories_rebuilt += synced.rebuilt + synced.extended
+            if dry_run:
+                report.dry_run = True
+                raise _Rollback
+    except _Rollback:
+        pass
+    return report
