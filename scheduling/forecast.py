@@ -30,6 +30,10 @@ The model, in order:
    date any position reaches ``damage_limit * D*``, and the calendar-age limit
    of original capacitors.  Status: overdue (date passed), due (within the
    horizon), watch (within ``watch_days``), ok.
+7. Triage (:mod:`scheduling.triage`): the chance of a fault during the next
+   typical hire given that the unit works now, weighted by what the failing
+   roles do to a hire; the priority among units that need work; an act-by
+   date never before today; per position replace, measure or leave.
 """
 
 from dataclasses import dataclass
@@ -54,6 +58,7 @@ from .days import DAYS_PER_YEAR, HOURS_PER_YEAR, MONTH_HOURS, date_to_day, day_t
 from .grouping import _first_per_unit, _per_unit, _unit_bounds  # noqa: F401
 from .reasons import _reasons
 from .thresholds import DAMAGE_THRESHOLD_CAP, ROLE_CODES, ROLE_NAMES, _thresholds  # noqa: F401
+from .triage import triage
 
 #: Use assumed for a gear model with no unit having twelve months of history:
 #: hire days per year and venue ambient.  Our assumption, not a published value.
@@ -122,6 +127,14 @@ class FleetForecast:
     storage_reform: np.ndarray
     max_damage_ratio: np.ndarray
     reasons: list
+    # triage (scheduling/triage.py)
+    hire_damage: np.ndarray = None   # per capacitor: damage one typical hire adds
+    hire_risk: np.ndarray = None     # per unit: P(fault during the next hire | works now)
+    score: np.ndarray = None         # per unit: hire risk x what the failing roles do to a hire
+    priority: np.ndarray = None      # per unit: 1 first among units that need work, 0 none needed
+    act_by_day: np.ndarray = None    # per unit: never before today; NaN nothing due
+    action: np.ndarray = None        # per capacitor: triage.LEAVE / MEASURE / REPLACE
+    why: np.ndarray = None           # per capacitor: triage.WHY_*
 
 
 def _inverse_life(fa_rated_life_h, rated_temp_c, temp_c, opts):
@@ -223,6 +236,26 @@ def projected_use(fa):
     return p, o, a
 
 
+def projected_hire(fa, powered_h_per_year, out_h_per_year):
+    """Per unit: powered hours and hours out of one typical hire, from its
+    last twelve months (hours over hires), else its gear model's units, else
+    ``DEFAULT_HIRE_LENGTH_DAYS`` at the model's powered hours per day."""
+    n = fa.use_hires_per_year
+    known = ~np.isnan(n) & (n > 0)
+    n_models = fa.model_id.size
+    with np.errstate(invalid="ignore", divide="ignore"):
+        per_p = np.where(known, powered_h_per_year / np.where(known, n, 1.0), np.nan)
+        per_o = np.where(known, out_h_per_year / np.where(known, n, 1.0), np.nan)
+        count = np.bincount(fa.unit_model[known], minlength=n_models).astype(float)
+        mean_p = np.bincount(fa.unit_model[known], weights=per_p[known], minlength=n_models) / count
+        mean_o = np.bincount(fa.unit_model[known], weights=per_o[known], minlength=n_models) / count
+    model_p = np.where(count > 0, mean_p, fa.model_hours_per_day * DEFAULT_HIRE_LENGTH_DAYS)
+    model_o = np.where(count > 0, mean_o, DEFAULT_HIRE_LENGTH_DAYS * 24.0)
+    hire_p = np.where(known, per_p, model_p[fa.unit_model])
+    hire_o = np.where(known, per_o, model_o[fa.unit_model])
+    return hire_p, np.maximum(hire_o, hire_p)
+
+
 def _unpowered_per_year(fa, out_unpowered_h, venue_c, store_frac, opts, factorise=True):
     """Damage per year [1/year] from unpowered time, per capacitor: hours out on
     hire but off (at the venue ambient) and storage at the home location's
@@ -275,9 +308,13 @@ def compute(fa, *, today, policy=None, options=None):
         esr_now_for_rate = physics.esr_at_damage(fa.esr0_ohm, d_hist)
     rise_now = physics.ripple_rise_k(ripple_a, esr_now_for_rate, fa.diameter_mm, fa.length_mm)
     L0, T0 = fa.rated_life_h, fa.rated_temp_c
-    per_year = p_h[ui] * _inverse_life(L0, T0, amb_c[ui] + rise_int[ui] + rise_now, opts)
+    powered_per_h = _inverse_life(L0, T0, amb_c[ui] + rise_int[ui] + rise_now, opts)  # damage per powered hour
+    per_year = p_h[ui] * powered_per_h
     per_year += _unpowered_per_year(fa, (o_h - p_h), amb_c, store_frac, opts)
     rate = per_year / DAYS_PER_YEAR
+    # What one typical hire adds: its powered hours hot, the rest of it off at the venue.
+    hire_p, hire_o = projected_hire(fa, p_h, o_h)
+    hire_damage = hire_p[ui] * powered_per_h + (hire_o - hire_p)[ui] * _inverse_life(L0, T0, amb_c[ui], opts)
 
     # 2. use since the last count, projected
     since = np.maximum(today_day - np.maximum(fa.accounted_day[ui], fa.installed_day), 0.0)
@@ -391,6 +428,13 @@ def compute(fa, *, today, policy=None, options=None):
         drivers[(drivers >= 0) & ~(share[np.maximum(drivers, 0)] > 0)] = -1
     reasons = _reasons(fa, policy, today_day, damage, threshold, reaches, risk, risk_day, age_day, has_original,
                        storage_reform, unpowered_months, drivers)
+    # 7. triage: the next hire's risk, what the failing roles do to it, actions
+    tri = triage(unit_index=ui, n_units=nu, role_code=fa.pos_role[fa.position_index], damage=damage,
+                 threshold=threshold, hire_damage=hire_damage, installed_day=fa.installed_day,
+                 is_original=fa.is_original, status=status, due_day=due_day, today_day=today_day, policy=policy,
+                 weibull_shape=beta, frailty_sigma=opts.frailty_sigma)
     return FleetForecast(today_day=today_day, damage=damage, esr_ohm=esr, capacitance_f=cap, threshold=threshold,
                          rate_per_day=rate, reaches_day=reaches, risk=risk, due_day=due_day, status=status,
-                         storage_reform=storage_reform, max_damage_ratio=ratio, reasons=reasons)
+                         storage_reform=storage_reform, max_damage_ratio=ratio, reasons=reasons,
+                         hire_damage=hire_damage, hire_risk=tri.hire_risk, score=tri.score, priority=tri.priority,
+                         act_by_day=tri.act_by_day, action=tri.action, why=tri.why)

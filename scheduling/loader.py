@@ -12,7 +12,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 from django.db import connection
-from django.db.models import F, FloatField, Func, Sum
+from django.db.models import Count, F, FloatField, Func, Sum
 
 from fleet.models import GearModel, MaintenancePolicy, Position, Rental, Unit, UnitCapacitor
 
@@ -44,6 +44,7 @@ class FleetArrays:
     use_powered_h_per_year: np.ndarray   # last twelve months (NaN: too little history)
     use_out_h_per_year: np.ndarray
     use_ambient_c: np.ndarray
+    use_hires_per_year: np.ndarray       # hires closed in the last twelve months (NaN: too little history)
     # gear models
     model_id: np.ndarray
     model_rise_k: np.ndarray
@@ -172,7 +173,8 @@ class HoursBetween(Func):
 
 def recent_use(unit_ids, today):
     """Per unit over the last twelve months: powered hours, hours out on hire,
-    and the powered-hours-weighted venue ambient.  One grouped query."""
+    the powered-hours-weighted venue ambient and the number of hires.  One
+    grouped query."""
     since = dt.datetime.combine(today - dt.timedelta(days=365), dt.time(0), tzinfo=dt.timezone.utc)
     qs = Rental.objects.filter(in_at__isnull=False, in_at__gte=since)
     if unit_ids is not None:
@@ -181,9 +183,10 @@ def recent_use(unit_ids, today):
         powered=Sum("powered_hours"),
         weighted=Sum(F("powered_hours") * F("venue_ambient_c")),
         out=Sum(HoursBetween("in_at", "out_at")),
+        hires=Count("id"),
     )
     return {r["unit_id"]: (r["powered"] or 0.0, r["out"] or 0.0,
-                           (r["weighted"] / r["powered"]) if r["powered"] else np.nan) for r in rows}
+                           (r["weighted"] / r["powered"]) if r["powered"] else np.nan, r["hires"]) for r in rows}
 
 
 def _raw(sql, params):
@@ -264,14 +267,16 @@ def load_fleet(*, unit_ids=None, today, min_history_days=180):
     use_p = np.full(n, np.nan)
     use_o = np.full(n, np.nan)
     use_a = np.full(n, np.nan)
-    for unit_id, (p, o, a) in use.items():
+    use_n = np.full(n, np.nan)
+    for unit_id, (p, o, a, hires) in use.items():
         k = uidx.get(unit_id)
         if k is not None and today_day - joined_day[k] >= min_history_days:
-            use_p[k], use_o[k], use_a[k] = p, o, a
+            use_p[k], use_o[k], use_a[k], use_n[k] = p, o, a, hires
     # Units in the fleet long enough but with no hires: a real zero, not unknown.
     settled = (today_day - joined_day) >= min_history_days
     use_p[settled & np.isnan(use_p)] = 0.0
     use_o[settled & np.isnan(use_o)] = 0.0
+    use_n[settled & np.isnan(use_n)] = 0.0
 
     caps = read_capacitors(filter_ids)
     cap_unit_index = _index_of(unit_ids_arr, caps["unit_id"])
@@ -304,7 +309,7 @@ def load_fleet(*, unit_ids=None, today, min_history_days=180):
         joined_day=joined_day,
         hist_powered=hp, hist_unpowered=hu, accounted_day=accounted, last_powered_day=last_powered,
         monthly_store_c=monthly,
-        use_powered_h_per_year=use_p, use_out_h_per_year=use_o, use_ambient_c=use_a,
+        use_powered_h_per_year=use_p, use_out_h_per_year=use_o, use_ambient_c=use_a, use_hires_per_year=use_n,
         model_id=np.array([m[0] for m in models], dtype=np.int64),
         model_rise_k=np.array([m[1] for m in models], dtype=float),
         model_hours_per_day=np.array([m[2] for m in models], dtype=float),

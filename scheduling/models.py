@@ -67,11 +67,19 @@ class UnitForecast(models.Model):
     horizon_days = models.PositiveIntegerField()
     max_damage_ratio = models.FloatField(help_text="Largest damage / threshold over the positions.")
     storage_reform = models.BooleanField(default=False)
+    act_by = models.DateField(null=True, blank=True,
+                              help_text="Do the work by this date; never before the day it was computed.")
+    priority = models.PositiveIntegerField(null=True, blank=True,
+                                           help_text="1 = first among the units that need work; empty: none needed.")
+    hire_risk = models.FloatField(default=0.0,
+                                  help_text="Probability (0-1) of a fault during the next typical hire, "
+                                            "given that the unit works now.")
+    score = models.FloatField(default=0.0, help_text="Hire risk weighted by what the failing roles do to a hire.")
     reasons = models.JSONField(default=list)
     positions = models.BinaryField(help_text="Per-position results, see scheduling/services.py")
 
     class Meta:
-        indexes = [models.Index(fields=["status", "due_date"])]
+        indexes = [models.Index(fields=["status", "due_date"]), models.Index(fields=["priority"])]
 
     def __str__(self):
         return f"{self.unit_id}: {self.status} {self.due_date}"

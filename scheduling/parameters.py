@@ -157,3 +157,20 @@ FRAILTY_TABLE_POINTS = 601
 #: Voltage treated as safe to touch after discharge [V d.c.].  [V] SELV per
 #: IEC 60335-1 as quoted in IEC Electropedia: 60 V d.c. (references.md §7).
 SAFE_VOLTAGE_V = 60.0
+
+# --- Triage ------------------------------------------------------------------
+
+#: What a failing position's role does to a hire, 0..1, weighting its share of
+#: the hazard a hire adds.  Our assumption (no published source): a pump pair
+#: losing the negative rail silences the unit (the hire is lost); a reservoir
+#: brings hum or dropouts (the unit is usually pulled); decoupling, noise or
+#: instability; a coupling capacitor loses the low end (degraded but usable);
+#: timing and general parts drift.
+ROLE_HIRE_IMPACT = {
+    "pump_flying": 1.0, "pump_reservoir": 1.0, "supply_reservoir": 0.8, "supply_decoupling": 0.5,
+    "signal_coupling": 0.4, "timing": 0.3, "general": 0.3,
+}
+#: Measure a part from this share of its damage limit on.  Our choice: past
+#: about two thirds of the way the prediction's scatter (Weibull shape 3)
+#: makes a reading worth more than the estimate.
+MEASURE_SHARE = 0.7

@@ -139,3 +139,36 @@ def _reasons(fa, policy, today_day, damage, threshold, reaches, risk, risk_day, 
                          "(bring the unit up slowly on a current-limited supply) before it goes out")
         out.append(words)
     return out
+
+
+def action_words(action, why, role, *, share=None, age_years=None, age_limit_years=None, min_rail_v=None,
+                 ripple_limit_v=None, max_corner_hz=None):
+    """One short line saying what to do with a position and why.
+
+    ``action`` and ``why`` are the codes of :mod:`scheduling.triage`; ``share``
+    is damage over its limit (1 = at the limit); the circuit figures are the
+    position's own (``None`` when the role has none).
+    """
+    from .triage import ACTION_NAMES, WHY_AGE, WHY_NEAR_LIMIT, WHY_NEW_FAILS, WHY_PAST_LIMIT, WHY_RISK_SHARE
+
+    verb = ACTION_NAMES[int(action)]
+    why = int(why)
+    if why == WHY_NEW_FAILS:
+        return f"{verb}: the circuit figures say even a new part falls short; check them"
+    if why == WHY_PAST_LIMIT:
+        if role in ("pump_flying", "pump_reservoir") and min_rail_v is not None:
+            return f"{verb}: negative rail below {min_rail_v:g} V at today's predicted ESR"
+        if role == "supply_reservoir" and ripple_limit_v is not None:
+            return f"{verb}: supply ripple above {ripple_limit_v:g} V p-p at today's predicted ESR and capacitance"
+        if role == "signal_coupling" and max_corner_hz is not None:
+            return f"{verb}: bass corner above {max_corner_hz:g} Hz at today's predicted capacitance"
+        return f"{verb}: past end-of-life drift (ESR doubled, capacitance down 20 %)"
+    if why == WHY_AGE:
+        return f"{verb}: original part {age_years:.0f} years old (house limit {age_limit_years:g} years)"
+    if why == WHY_NEAR_LIMIT:
+        return f"{verb}: at {min(share, 1.0):.0%} of its limit; read its ESR and capacitance"
+    if why == WHY_RISK_SHARE:
+        return f"{verb}: carries much of the unit's risk for its next hire; read its ESR and capacitance"
+    if share is None:
+        return verb
+    return f"{verb}: {min(share, 1.0):.0%} of its limit"

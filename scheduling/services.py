@@ -21,13 +21,17 @@ from .loader import active_policy, load_fleet
 from .models import UnitForecast
 from .thermal import thermal_sync
 from .thresholds import ROLE_NAMES
+from .triage import ACTION_NAMES
 
 #: Layout of the per-position results stored in UnitForecast.positions.
 #: Single precision keeps six significant digits, more than the model's
 #: inputs carry, and halves what a nightly refresh writes.
+#: Each unit's blob starts with this tag; change it with the layout, so a blob
+#: written with another layout reads as empty until the next refresh.
+POSITION_LAYOUT = b"RP02"
 POSITION_DTYPE = np.dtype([
     ("capacitor_id", "<i8"), ("damage", "<f4"), ("esr_ohm", "<f4"), ("capacitance_f", "<f4"),
-    ("threshold", "<f4"), ("reaches_day", "<f4"),
+    ("threshold", "<f4"), ("reaches_day", "<f4"), ("action", "i1"), ("why", "i1"),
 ])
 
 
@@ -68,6 +72,9 @@ class ForecastRun:
             "risk": round(float(r.risk[u]), 6),
             "horizon_days": int(self.policy.horizon_days),
             "storage_reform": bool(r.storage_reform[u]),
+            "act_by": None if np.isnan(r.act_by_day[u]) else day_to_date(r.act_by_day[u]).isoformat(),
+            "priority": int(r.priority[u]) or None,
+            "hire_risk": round(float(r.hire_risk[u]), 6),
             "reasons": r.reasons[u],
         }
         if with_positions:
@@ -86,14 +93,17 @@ class ForecastRun:
             "capacitance_f": float(f"{r.capacitance_f[i]:.6g}"),
             "damage_threshold": round(float(r.threshold[i]), 6),
             "reaches_threshold_on": None if np.isnan(reach) else day_to_date(reach).isoformat(),
+            "action": ACTION_NAMES[int(r.action[i])],
         }
 
     def urgency_order(self):
-        """Unit rows, most urgent first: overdue, due, watch, ok; then by due date, then risk."""
+        """Unit rows in triage order: the units that need work by priority (1
+        first), then the rest by status (watch before ok), due date and risk."""
         rank = {"overdue": 0, "due": 1, "watch": 2, "ok": 3}
-        due = np.where(np.isnan(self.result.due_day), np.inf, self.result.due_day)
+        r = self.result
+        due = np.where(np.isnan(r.due_day), np.inf, r.due_day)
         return sorted(range(self.fleet.n_units),
-                      key=lambda u: (rank[self.result.status[u]], due[u], -self.result.risk[u]))
+                      key=lambda u: (r.priority[u] == 0, r.priority[u], rank[r.status[u]], due[u], -r.risk[u]))
 
 
 def forecast_compute(*, unit_ids=None, today=None, law=None, activation_energy_ev=None, esr_feedback=False,
@@ -135,10 +145,12 @@ def _store(run):
     for name in ("damage", "esr_ohm", "capacitance_f", "threshold"):
         packed[name] = getattr(r, name)[order]
     packed["reaches_day"] = r.reaches_day[order]
+    packed["action"] = r.action[order]
+    packed["why"] = r.why[order]
     blob = packed.tobytes()
     size = POSITION_DTYPE.itemsize
     bounds = zip((run._starts * size).tolist(), (run._ends * size).tolist())
-    positions = [blob[a:b] for a, b in bounds]
+    positions = [POSITION_LAYOUT + blob[a:b] for a, b in bounds]
     unit_ids = fa.unit_id.tolist()
     due = _day_dates(r.due_day)
     risk = r.risk.astype(float).tolist()
@@ -146,9 +158,13 @@ def _store(run):
     reform = r.storage_reform.astype(bool).tolist()
     reasons = [json.dumps(words) for words in r.reasons]
     horizon = int(run.policy.horizon_days)
+    act_by = _day_dates(r.act_by_day)
+    priority = [p or None for p in r.priority.tolist()]
+    hire_risk = r.hire_risk.astype(float).tolist()
+    score = r.score.astype(float).tolist()
 
     columns = ["unit_id", "computed_at", "status", "due_date", "risk", "horizon_days", "max_damage_ratio",
-               "storage_reform", "reasons", "positions"]
+               "storage_reform", "reasons", "positions", "act_by", "priority", "hire_risk", "score"]
     qn = connection.ops.quote_name
     table = qn(UnitForecast._meta.db_table)
     updates = ", ".join(f"{qn(c)} = excluded.{qn(c)}" for c in columns[1:])
@@ -163,10 +179,12 @@ def _store(run):
             raw = psycopg.Cursor(connection.connection)
             started = time.monotonic()
             raw.execute(
-                insert + "SELECT u, %b, s, d, r, %b::integer, m, f, j::jsonb, p FROM unnest("
+                insert + "SELECT u, %b, s, d, r, %b::integer, m, f, j::jsonb, p, a, o, h, c FROM unnest("
                 "%b::bigint[], %b::text[], %b::date[], %b::float8[], %b::float8[], %b::bool[], %b::text[], "
-                "%b::bytea[]) AS x(u, s, d, r, m, f, j, p) " + conflict,
-                [now, horizon, unit_ids, list(r.status), due, risk, ratio, reform, reasons, positions],
+                "%b::bytea[], %b::date[], %b::integer[], %b::float8[], %b::float8[]) "
+                "AS x(u, s, d, r, m, f, j, p, a, o, h, c) " + conflict,
+                [now, horizon, unit_ids, list(r.status), due, risk, ratio, reform, reasons, positions,
+                 act_by, priority, hire_risk, score],
             )
             raw.close()
             if connection.queries_logged:  # a raw cursor: log it as Django's own cursors do
@@ -176,10 +194,13 @@ def _store(run):
             conn = connections[DEFAULT_DB_ALIAS]
             computed_at = UnitForecast._meta.get_field("computed_at").get_db_prep_save(now, conn)
             due_text = [None if d is None else d.isoformat() for d in due]
+            act_text = [None if d is None else d.isoformat() for d in act_by]
             cursor.executemany(
                 insert + f"VALUES ({', '.join(['%s'] * len(columns))}) " + conflict,
-                [(uid, computed_at, s, d, rk, horizon, m, f, j, p) for uid, s, d, rk, m, f, j, p
-                 in zip(unit_ids, r.status, due_text, risk, ratio, reform, reasons, positions)],
+                [(uid, computed_at, s, d, rk, horizon, m, f, j, p, a, o, h, c)
+                 for uid, s, d, rk, m, f, j, p, a, o, h, c
+                 in zip(unit_ids, r.status, due_text, risk, ratio, reform, reasons, positions, act_text, priority,
+                        hire_risk, score)],
             )
     return len(unit_ids)
 
@@ -213,7 +234,8 @@ def forecast_refresh(*, unit_ids=None, today=None, **options):
 def stored_positions(forecast):
     """The per-position results of a stored UnitForecast as a structured array."""
     blob = bytes(forecast.positions or b"")
-    if len(blob) % POSITION_DTYPE.itemsize:
-        # Written with an earlier layout: show nothing until the next refresh rewrites it.
+    tag = len(POSITION_LAYOUT)
+    if blob[:tag] != POSITION_LAYOUT or (len(blob) - tag) % POSITION_DTYPE.itemsize:
+        # Written with another layout: show nothing until the next refresh rewrites it.
         return np.zeros(0, dtype=POSITION_DTYPE)
-    return np.frombuffer(blob, dtype=POSITION_DTYPE)
+    return np.frombuffer(blob, dtype=POSITION_DTYPE, offset=tag)

@@ -312,11 +312,14 @@ def test_forecast_command_prints_json_per_unit(effects_model, store):
     call_command("forecast", "--json", "--unit", "t-j", "--today", "2026-12-01", stdout=out)
     data = json.loads(out.getvalue())
     assert [d["asset_tag"] for d in data] == ["T-J"]
-    keys = {"asset_tag", "status", "due_date", "risk", "horizon_days", "reasons", "positions"}
+    keys = {"asset_tag", "status", "due_date", "risk", "horizon_days", "reasons", "positions", "act_by",
+            "priority"}
     assert keys <= set(data[0])
     assert {p["designator"] for p in data[0]["positions"]} == {"C1", "C2", "C31", "C32"}
     assert set(data[0]["positions"][0]) == {"designator", "role", "damage", "esr_ohm", "capacitance_f",
-                                            "damage_threshold", "reaches_threshold_on"}
+                                            "damage_threshold", "reaches_threshold_on", "action"}
+    assert data[0]["act_by"] is None or data[0]["act_by"] >= "2026-12-01"
+    assert {p["action"] for p in data[0]["positions"]} <= {"replace", "measure", "leave"}
 
 
 def test_forecast_command_passes_the_scatter_options_to_the_engine(effects_model, attic):
@@ -415,8 +418,8 @@ def test_recent_use_counts_hours_out_from_the_hire_times(effects_model, store):
 
     unit = make_unit(effects_model, store)
     hire(unit, aware(2026, 10, 1, 9), days=3, powered_hours=20, ambient_c=30)
-    powered, out, ambient = recent_use([unit.pk], TODAY)[unit.pk]
-    assert (powered, ambient) == (20.0, 30.0)
+    powered, out, ambient, hires = recent_use([unit.pk], TODAY)[unit.pk]
+    assert (powered, ambient, hires) == (20.0, 30.0, 1)
     assert out == pytest.approx(72.0, abs=1e-6)
 
 

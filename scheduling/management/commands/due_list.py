@@ -1,4 +1,4 @@
-"""manage.py due_list: the due-for-recap list, most urgent first."""
+"""manage.py due_list: the due-for-recap list in triage order (priority 1 first)."""
 
 import csv
 import datetime as dt
@@ -10,11 +10,13 @@ from scheduling.services import forecast_refresh
 
 from ._engine_args import add_engine_arguments, engine_options
 
-COLUMNS = ["asset_tag", "maker", "model", "location", "unit_status", "forecast", "due_date", "risk", "reasons"]
+COLUMNS = ["priority", "asset_tag", "maker", "model", "location", "unit_status", "forecast", "act_by", "due_date",
+           "risk", "hire_risk", "reasons"]
 
 
 class Command(BaseCommand):
-    help = "List the units due for a recap within a number of days, most urgent first."
+    help = ("List the units that need work (by priority, 1 first), then those due for a recap within a "
+            "number of days.")
 
     def add_arguments(self, parser):
         parser.add_argument("--within", type=int, default=None, metavar="DAYS",
@@ -37,18 +39,22 @@ class Command(BaseCommand):
         rows = []
         for u in run.urgency_order():
             d = run.unit_dict(u, with_positions=False)
-            if d["due_date"] is None or dt.date.fromisoformat(d["due_date"]) > limit:
+            due_soon = d["due_date"] is not None and dt.date.fromisoformat(d["due_date"]) <= limit
+            if not d["priority"] and not due_soon:
                 continue
             unit = units[int(run.fleet.unit_id[u])]
-            rows.append([d["asset_tag"], unit.gear_model.maker, unit.gear_model.model_name, unit.home_location.name,
-                         unit.status, d["status"], d["due_date"], f"{d['risk']:.3f}", " | ".join(d["reasons"])])
+            rows.append([d["priority"] or "", d["asset_tag"], unit.gear_model.maker, unit.gear_model.model_name,
+                         unit.home_location.name, unit.status, d["status"], d["act_by"] or "", d["due_date"],
+                         f"{d['risk']:.3f}", f"{d['hire_risk']:.4f}", " | ".join(d["reasons"])])
         if options["csv"]:
             writer = csv.writer(self.stdout)
             writer.writerow(COLUMNS)
             writer.writerows(rows)
             return
         for r in rows:
-            self.stdout.write(f"{r[0]:<12} {r[5]:<8} {r[6]:<10} {r[1]} {r[2]} ({r[3]})")
-            for reason in r[8].split(" | ") if r[8] else []:
-                self.stdout.write(f"    {reason}")
-        self.stdout.write(f"{len(rows)} units due by {limit.isoformat()} (overdue included).")
+            self.stdout.write(f"{str(r[0]):>4} {r[1]:<12} {r[6]:<8} act by {r[7] or '-':<10} {r[2]} {r[3]} ({r[4]})")
+            for reason in r[11].split(" | ") if r[11] else []:
+                self.stdout.write(f"       {reason}")
+        need = sum(1 for r in rows if r[0] != "")
+        self.stdout.write(f"{need} units need work (priority 1 first); {len(rows) - need} more due by "
+                          f"{limit.isoformat()}.")
