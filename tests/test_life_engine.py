@@ -342,10 +342,11 @@ def test_due_list_orders_most_urgent_first_and_writes_csv(effects_model, store, 
     out = StringIO()
     call_command("due_list", "--csv", "--within", "3650", "--today", "2026-12-01", stdout=out)
     lines = out.getvalue().strip().splitlines()
-    assert lines[0].startswith("asset_tag,")
-    rows = [line.split(",") for line in lines[1:]]
-    assert rows[0][0] == "T-OLD" and rows[0][5] == "overdue"
-    assert all(r[5] != "overdue" for r in rows[1:])
+    header = lines[0].split(",")
+    assert header[:2] == ["priority", "asset_tag"]
+    rows = [dict(zip(header, line.split(","))) for line in lines[1:]]
+    assert rows[0]["asset_tag"] == "T-OLD" and rows[0]["forecast"] == "overdue" and rows[0]["priority"] == "1"
+    assert all(r["forecast"] != "overdue" for r in rows[1:])
 
 
 @pytest.mark.parametrize("args, message", [
