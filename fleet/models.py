@@ -8,6 +8,8 @@ Rules about a row's own fields live here (``clean``); anything that touches
 several rows lives in ``fleet/services.py``.
 """
 
+import datetime as dt
+
 from django.conf import settings
 from django.core.exceptions import ValidationError
 from django.core.validators import MaxValueValidator, MinValueValidator, RegexValidator
@@ -18,6 +20,11 @@ RATED_TEMP_MIN_C = -55.0
 RATED_TEMP_MAX_C = 150.0
 AMBIENT_MIN_C = -40.0
 AMBIENT_MAX_C = 85.0
+#: The first and last day any date of the register may fall on: before the
+#: oldest gear and well past any plan, and far from the ends of the calendar,
+#: where time-zone arithmetic overflows.
+EARLIEST_DATE = dt.date(1900, 1, 1)
+LATEST_DATE = dt.date(2100, 12, 31)
 
 asset_tag_validator = RegexValidator(
     r"^[A-Z0-9][A-Z0-9-]{1,23}$",

@@ -48,6 +48,7 @@ __all__ = [
     "parse_number",
     "parse_whole_number",
     "parse_bool",
+    "excerpt",
     "format_capacitance",
     "format_rkm",
 ]
@@ -65,8 +66,33 @@ _MICRO_SIGNS = ("\u00b5", "\u03bc")  # MICRO SIGN, GREEK SMALL LETTER MU
 _CAP_HINT = "write 47u, 4u7, 470n or 47 uF"
 
 _NUMBER = r"(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][+-]?\d+)?"
+
+#: Longest text read as a number, and the largest power of ten it may reach
+#: (either way).  Guards, not physics: a float reaches about 1e308, and an
+#: exponent such as 1e999999999 would otherwise be expanded digit by digit.
+MAX_NUMBER_CHARS = 100
+MAX_DECIMAL_EXPONENT = 400
+MAX_WHOLE_DIGITS = 15
 _ENG_RE = re.compile(rf"(?P<sign>[+-]?)(?P<num>{_NUMBER})\s*(?P<suffix>[A-Za-z]*)")
 _RKM_CAP_RE = re.compile(r"(?P<sign>[+-]?)(?P<int>\d*)(?P<letter>[pPnNuUmF])(?P<frac>\d+)")
+
+
+def _too_long(raw) -> bool:
+    return len(raw) > MAX_NUMBER_CHARS
+
+
+def _bounded(number: Decimal, message: str) -> Decimal:
+    """``number`` unchanged, or ``ValueError(message)`` when its power of ten
+    is beyond any float (so no later step expands or overflows it)."""
+    if number.is_finite() and number and abs(number.adjusted()) > MAX_DECIMAL_EXPONENT:
+        raise ValueError(message)
+    return number
+
+
+def excerpt(raw) -> str:
+    """What was written, shortened for a message."""
+    raw = str(raw)
+    return raw if len(raw) <= 40 else raw[:37] + "..."
 
 
 def _normalise_micro(text: str) -> str:
@@ -125,6 +151,8 @@ def parse_capacitance_uf(text, *, bare_unit: str | None = None) -> float:
     s = _normalise_micro(raw.strip())
     if not s:
         raise ValueError(f"No capacitance given: {_CAP_HINT}.")
+    if _too_long(s):
+        raise ValueError(f"'{excerpt(raw)}' is too long to be a capacitance: {_CAP_HINT}.")
 
     if re.fullmatch(r"[+-]?\d*M\d+", s):
         raise ValueError(
@@ -143,7 +171,7 @@ def parse_capacitance_uf(text, *, bare_unit: str | None = None) -> float:
     match = _ENG_RE.fullmatch(s)
     if not match:
         raise ValueError(f"'{raw}' is not a capacitance: {_CAP_HINT}.")
-    number = Decimal(match["num"])
+    number = _bounded(Decimal(match["num"]), f"'{raw}' is out of range for a capacitance.")
     if match["sign"] == "-":
         number = -number
     suffix = match["suffix"]
@@ -269,6 +297,8 @@ def parse_temperature_c(text) -> float:
         s = raw.strip()
         if not s:
             raise ValueError(f"No temperature given: {_TEMP_HINT}.")
+        if _too_long(s):
+            raise ValueError(f"'{excerpt(raw)}' is too long to be a temperature: {_TEMP_HINT}.")
         match = _TEMP_RE.fullmatch(s)
         if not match:
             raise ValueError(f"'{raw}' is not a temperature: {_TEMP_HINT}.")
@@ -279,7 +309,7 @@ def parse_temperature_c(text) -> float:
             )
         if unit not in _CELSIUS:
             raise ValueError(f"'{raw}' is not a temperature: {_TEMP_HINT}.")
-        value = float(Decimal(match["num"]))
+        value = float(_bounded(Decimal(match["num"]), f"'{raw}' is out of range for a temperature."))
     if not math.isfinite(value):
         raise ValueError(f"'{raw}' is not a temperature: {_TEMP_HINT}.")
     if value < -273.15:
@@ -361,6 +391,8 @@ def parse_number(text, field: str, unit: str | None = None, allow_negative: bool
         s = _normalise_micro(raw.strip())
         if not s:
             raise ValueError(f"{field}: no value given; {hint}.")
+        if _too_long(s):
+            raise ValueError(f"{field}: '{excerpt(raw)}' is too long to be a number; {hint}.")
         value = None
         rkm = _RKM_QTY_RE.fullmatch(s) if si_prefixes else None
         if rkm and (rkm["letter"] != "R" or unit == "ohm"):
@@ -372,7 +404,7 @@ def parse_number(text, field: str, unit: str | None = None, allow_negative: bool
             match = _QTY_RE.fullmatch(s)
             if not match:
                 raise ValueError(f"{field}: '{raw}' is not a number; {hint}.")
-            value = Decimal(match["num"])
+            value = _bounded(Decimal(match["num"]), f"{field}: '{raw}' is out of range.")
             if match["sign"] == "-":
                 value = -value
             suffix = match["suffix"].strip()
@@ -393,13 +425,23 @@ def parse_number(text, field: str, unit: str | None = None, allow_negative: bool
 
 
 def parse_whole_number(text, field: str, *, allow_negative: bool = False) -> int:
-    """A whole number such as a year: ``1978`` (``1978.0`` from a spreadsheet is accepted)."""
+    """A whole number such as a year: ``1978`` (``1978.0`` from a spreadsheet is accepted).
+
+    Numbers beyond 1e15 are refused as out of range before they are expanded
+    (``1e999999999`` would otherwise be written out digit by digit).
+    """
     raw = str(text).strip()
+    if _too_long(raw):
+        raise ValueError(f"{field}: '{excerpt(raw)}' is too long to be a whole number.")
     try:
         value = Decimal(raw)
     except InvalidOperation:
         value = None
-    if value is None or not value.is_finite() or value != value.to_integral_value():
+    if value is None or not value.is_finite():
+        raise ValueError(f"{field}: '{raw}' is not a whole number.")
+    if value and value.adjusted() > MAX_WHOLE_DIGITS:
+        raise ValueError(f"{field}: '{raw}' is out of range.")
+    if value != value.to_integral_value():
         raise ValueError(f"{field}: '{raw}' is not a whole number.")
     if value < 0 and not allow_negative:
         raise ValueError(f"{field} cannot be negative (got '{raw}').")

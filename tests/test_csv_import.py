@@ -496,7 +496,7 @@ def test_bad_unit_cells(base, tmp_path, changes, message):
      "Brindle Acoustics,Nimbus 4,effects,1979,1984,12,8,230,yes,no,no,",
      "row 3, column model_name: gear model 'Brindle Acoustics Nimbus 4' appears twice in the file (first on row 2)."),
     ("Brindle Acoustics,Nimbus 4,effects,1979,1984,12,8,230,yes,no",
-     "row 2: the row has 10 cells, but the header has 12 columns."),
+     "row 2: the row has 10 cells, but the header has 12 columns: a separating comma is missing"),
 ])
 def test_bad_gear_model_rows(db, tmp_path, text, message):
     refused(write(tmp_path, "gm.csv", GEAR_MODELS.splitlines()[0] + "\n" + text + "\n"), f"gm.csv, {message}")

@@ -6,7 +6,9 @@ import datetime as dt
 from django.utils import timezone
 
 from .. import values as V
-from ..models import RATED_TEMP_MAX_C, RATED_TEMP_MIN_C
+from ..models import EARLIEST_DATE, LATEST_DATE, RATED_TEMP_MAX_C, RATED_TEMP_MIN_C
+
+_YEARS = f"{EARLIEST_DATE.year}-{LATEST_DATE.year}"
 
 
 def _parse_choice(choices, text):
@@ -17,16 +19,23 @@ def _parse_choice(choices, text):
     raise ValueError(f"'{text}' is not one of: {', '.join(v for v, _ in choices.choices)}.")
 
 
+def _in_range(day, text):
+    if not EARLIEST_DATE <= day <= LATEST_DATE:
+        raise ValueError(f"'{text}' is outside the years {_YEARS} the register keeps.")
+
+
 def _parse_datetime(text):
     s = text.strip()
-    if len(s) < 16 or s[10] not in "Tt ":
-        raise ValueError(f"'{text}' is not a date and time: write ISO 8601, e.g. 2024-07-15T08:00:00Z "
+    if len(s) < 16 or len(s) > 40 or s[10] not in "Tt ":
+        raise ValueError(f"'{V.excerpt(text)}' is not a date and time: write ISO 8601, e.g. 2024-07-15T08:00:00Z "
                          f"or 2024-07-15 09:00 (local time).")
     try:
         value = dt.datetime.fromisoformat(s)
     except ValueError:
         raise ValueError(f"'{text}' is not a date and time: write ISO 8601, e.g. 2024-07-15T08:00:00Z "
                          f"or 2024-07-15 09:00 (local time).") from None
+    # Checked before any time-zone arithmetic, which overflows at the ends of the calendar.
+    _in_range(value.date(), text)
     if value.tzinfo is None:
         tz = timezone.get_current_timezone()
         first, second = value.replace(tzinfo=tz, fold=0), value.replace(tzinfo=tz, fold=1)
@@ -39,9 +48,13 @@ def _parse_datetime(text):
 
 def _parse_date(text):
     try:
-        return dt.date.fromisoformat(text.strip())
+        day = dt.date.fromisoformat(text.strip()) if len(text) <= 40 else None
     except ValueError:
-        raise ValueError(f"'{text}' is not a date: write YYYY-MM-DD, e.g. 2019-03-01.") from None
+        day = None
+    if day is None:
+        raise ValueError(f"'{V.excerpt(text)}' is not a date: write YYYY-MM-DD, e.g. 2019-03-01.")
+    _in_range(day, text)
+    return day
 
 
 def _parse_monthly(text):

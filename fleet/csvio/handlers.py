@@ -10,6 +10,8 @@ from .columns import COLUMNS, MODELS, _label
 
 #: Rows per bulk write.
 WRITE_BATCH = 2000
+#: Longest cell read as a value (names, numbers, dates); only notes may be longer.
+MAX_VALUE_CHARS = 1000
 
 
 class _Handler:
@@ -48,6 +50,16 @@ class _Handler:
         values, ok = {}, True
         for c in self.columns:
             text = cells[index[c.name]]
+            if "\x00" in text:
+                self.error(number, c.name, "the cell holds a NUL character (a zero byte), which is not text; "
+                                           "was the file saved as CSV?")
+                ok = False
+                continue
+            if c.type != "notes" and len(text) > MAX_VALUE_CHARS:
+                self.error(number, c.name, f"the cell holds {len(text):,} characters; no {self.labels[c.name]} "
+                                           f"is that long.")
+                ok = False
+                continue
             if text.strip() == "":
                 if c.required:
                     self.error(number, c.name, f"no value given; the {self.labels[c.name]} is required.")
@@ -93,6 +105,10 @@ class _Handler:
     def existing(self, values, refs):
         raise NotImplementedError
 
+    def keep_owned(self, obj, fields):
+        """Put back into ``fields`` what other services own on an existing
+        record (an import leaves it as it is)."""
+
     def check(self, number, obj, fields, changed):
         """Extra rules for a new (``obj is None``) or changed row; False to refuse it."""
         return True
@@ -117,6 +133,8 @@ class _Handler:
         fields = {c.model_field: values[c.name] for c in self.columns if c.model_field}
         fields.update(refs)
         obj = self.existing(values, refs)
+        if obj is not None:
+            self.keep_owned(obj, fields)
         if obj is None:
             if not self.check(number, None, fields, list(fields)):
                 return None

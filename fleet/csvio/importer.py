@@ -1,10 +1,9 @@
 """Importing one file, all or nothing."""
 
-import csv
-
 from django.db import transaction
 
 from .kinds import HANDLERS
+from .records import Records, StructureError
 from .reading import CsvImportError, ImportReport, _DryRun, _Errors, _Fatal, _kind_from_header, _lines, _open, \
     _read_header
 
@@ -44,8 +43,8 @@ def import_csv(fileobj_or_path, *, name=None, dry_run=False) -> ImportReport:
 
 
 def _import(f, name, dry_run):
-    reader = csv.reader(_lines(f, name))
-    header = _read_header(reader, name)
+    records = Records(_lines(f, name), name)
+    header = _read_header(records, name)
     kind = _kind_from_header(header, name)
     width = len(header)
     index = {c.strip().lower(): i for i, c in enumerate(header)}
@@ -56,9 +55,9 @@ def _import(f, name, dry_run):
             handler = HANDLERS[kind](name, errors, report)
             index = {c.name: index[c.name] for c in handler.columns}
             batch = []
-            number = 1
             try:
-                for number, cells in enumerate(reader, start=2):
+                for number, cells in enumerate(records, start=2):
+                    hint = records.check(cells, number, header)
                     if not any(c.strip() for c in cells):
                         continue  # a blank line, or a row of empty cells from a spreadsheet
                     report.rows += 1
@@ -67,7 +66,7 @@ def _import(f, name, dry_run):
                             cells = cells[:width]
                         else:
                             handler.error(number, None, f"the row has {len(cells)} cells, but the header has "
-                                                        f"{width} columns.")
+                                                        f"{width} columns: {hint}.")
                             continue
                     values = handler.parse(number, cells, index)
                     if values is None or not handler.check_duplicate(number, values):
@@ -76,10 +75,8 @@ def _import(f, name, dry_run):
                     if len(batch) >= BATCH_SIZE:
                         handler.flush(batch)
                         batch = []
-            except _Fatal as exc:
+            except (_Fatal, StructureError) as exc:
                 errors.add(str(exc))
-            except csv.Error as exc:
-                errors.add(f"{name}, row {number + 1} (line {reader.line_num}): {exc}")
             if batch:
                 handler.flush(batch)
             handler.finish()

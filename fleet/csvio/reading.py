@@ -3,11 +3,11 @@
 from __future__ import annotations
 
 import codecs
-import csv
 import os
 from dataclasses import dataclass, field
 
 from .columns import KINDS
+from .records import Records, StructureError, header_problem
 
 MAX_ERRORS_KEPT = 1000
 ERRORS_SHOWN = 20
@@ -107,6 +107,10 @@ def _lines(f, name):
             yield raw.lstrip("\ufeff") if lineno == 1 else raw
             continue
         if len(raw) > MAX_LINE_BYTES:
+            if raw.count(b"\r") > 1:
+                raise _Fatal(f"{name}, line {lineno}: the lines of this file end in a bare carriage return "
+                             f"(CR), as some old spreadsheets save them; save it again with ordinary line "
+                             f"endings (LF or CR LF), for example as 'CSV UTF-8', and import it again.")
             raise _Fatal(f"{name}, line {lineno}: the line is longer than {MAX_LINE_BYTES // 1024} KiB; "
                          f"is this a CSV file?")
         start = offset
@@ -129,6 +133,9 @@ def _kind_from_header(header, name):
     where = f"{name}, row 1"
     if not any(cols):
         raise CsvImportError([f"{where}: the first row must be the header naming the columns, but it is empty."])
+    problem = header_problem(header)
+    if problem:
+        raise CsvImportError([f"{where}: {problem}"])
     seen, twice = set(), []
     for c in cols:
         if c in seen and c not in twice:
@@ -160,20 +167,22 @@ def _kind_from_header(header, name):
     raise CsvImportError([f"{where}: the header looks like a {best} file, but {'; '.join(parts)}."])
 
 
-def _read_header(reader, name):
-    """The first row; an empty file (or one with only blank lines) is refused."""
+def _read_header(records, name):
+    """The first row of ``records`` (a ``Records``); an empty file (or one with
+    only blank lines) is refused."""
     try:
-        header = next(reader, None)
+        header = next(records, None)
         if header is not None and not any(c.strip() for c in header):
             while header is not None and not any(c.strip() for c in header):
-                header = next(reader, None)
+                header = next(records, None)
             if header is not None:
                 raise CsvImportError([f"{name}, row 1: the first row must be the header naming the columns, "
                                       f"but it is empty."])
-    except _Fatal as exc:
+        if header is not None and any("\n" in c or "\r" in c for c in header):
+            raise CsvImportError([f"{name}, row 1: a double quote opens a column name in the header and is not "
+                                  f"closed on that line; column names are written without quotes."])
+    except (_Fatal, StructureError) as exc:
         raise CsvImportError([str(exc)]) from None
-    except csv.Error as exc:
-        raise CsvImportError([f"{name}, row 1: {exc}"]) from None
     if header is None:
         raise CsvImportError([f"{name}: the file is empty; the first row must name the columns."])
     return header
@@ -183,7 +192,7 @@ def detect_kind(fileobj_or_path, *, name=None) -> str:
     """The kind of a CSV file, from its header row alone.  Raises ``CsvImportError``."""
     f, name, close = _open(fileobj_or_path, name)
     try:
-        return _kind_from_header(_read_header(csv.reader(_lines(f, name)), name), name)
+        return _kind_from_header(_read_header(Records(_lines(f, name), name), name), name)
     finally:
         if close:
             f.close()
