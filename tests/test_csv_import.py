@@ -228,8 +228,9 @@ def test_a_changed_row_is_updated_in_place(fleet, tmp_path):
     report = import_csv(write(tmp_path, "units.csv", text))
     assert (report.created, report.updated, report.unchanged) == (0, 1, 2)
     unit = Unit.objects.get(asset_tag="NB-0001")
-    assert (unit.pk, unit.home_location.name, unit.status, unit.hour_meter_h) == (pk, "Studio B", "hold", 12.0)
-    assert report.histories_rebuilt == 0  # storage place and status are not prior use
+    # The status belongs to the desk and stays; a first meter reading is taken.
+    assert (unit.pk, unit.home_location.name, unit.status, unit.hour_meter_h) == (pk, "Studio B", "available", 12.0)
+    assert report.histories_rebuilt == 0  # storage place and meter are not prior use
     assert UnitCapacitor.objects.filter(unit=unit).count() == 4
 
 
@@ -557,14 +558,33 @@ def test_one_row_may_have_several_errors(db, tmp_path):
 def test_an_import_cannot_change_what_other_services_own(fleet, tmp_path):
     text = UNITS.replace("NB-0001,N4-10233,Brindle Acoustics,Nimbus 4,1981", "NB-0001,N4-10233,Orrery Instruments,"
                          "Tidewell 12,1980")
-    text = text.replace("Studio B,bench,", "Studio B,out,")
     before = counts()
     refused(write(tmp_path, "units.csv", text),
             "units.csv, row 2, column model_name: NB-0001 is a Brindle Acoustics Nimbus 4; an import cannot change "
             "a unit's gear model",
-            "units.csv, row 2, column year_made: NB-0001 was made in 1981; an import cannot change the year",
-            "units.csv, row 3, column status: NB-0002 is 'bench'; the status 'out' is set only by check-out")
+            "units.csv, row 2, column year_made: NB-0001 was made in 1981; an import cannot change the year")
     assert counts() == before
+
+
+def test_an_import_leaves_the_status_and_hour_meter_of_existing_units_alone(fleet, tmp_path):
+    """Re-importing an older export must not release a unit the desk held for a fault, put a unit
+    back on the shelf that is out, or wind an hour meter back."""
+    Unit.objects.filter(asset_tag="NB-0001").update(status=Unit.Status.HOLD)
+    Unit.objects.filter(asset_tag="NB-0002").update(hour_meter_h=1600.0)
+    text = UNITS.replace("Studio B,bench,1520.5", "Studio B,out,1520.5")
+    report = import_csv(write(tmp_path, "units.csv", text))
+    assert Unit.objects.get(asset_tag="NB-0001").status == Unit.Status.HOLD
+    nb2 = Unit.objects.get(asset_tag="NB-0002")
+    assert (nb2.status, nb2.hour_meter_h) == (Unit.Status.BENCH, 1600.0)
+    assert (report.updated, report.unchanged) == (0, 3)
+    assert "The status in the file differs for 2 existing units; it was left as the rental desk" in report.summary()
+    assert "The hour meter in the file differs for 1 existing unit;" in report.summary()
+    # A new unit may still be imported held, but never out.
+    extra = UNITS + "NB-0003,N4-1,Brindle Acoustics,Nimbus 4,1982,2020-06-15,Studio B,hold,,,,,\n"
+    import_csv(write(tmp_path, "units.csv", extra))
+    assert Unit.objects.get(asset_tag="NB-0003").status == Unit.Status.HOLD
+    refused(write(tmp_path, "units.csv", extra.replace("NB-0003", "NB-0004").replace("Studio B,hold", "Studio B,out")),
+            "units.csv, row 5, column status: a new unit cannot be 'out'")
 
 
 # --- management commands --------------------------------------------------------------------

@@ -192,6 +192,7 @@ class _Units(_Handler):
         super().__init__(*args)
         self.models = _GearModelLookup()
         self.locations = _LocationLookup()
+        self.kept_status = self.kept_meter = 0
 
     def key(self, values):
         return values["asset_tag"]
@@ -220,6 +221,29 @@ class _Units(_Handler):
     def existing(self, values, refs):
         return self.found.get(values["asset_tag"])
 
+    def keep_owned(self, obj, fields):
+        # The unit's status (out, held, on the bench) belongs to the rental desk
+        # and the workshop, and its hour meter to check-in: an older export read
+        # back must not release a held unit or wind a meter back.
+        if fields["status"] != obj.status:
+            self.kept_status += 1
+            fields["status"] = obj.status
+        if obj.hour_meter_h is not None and fields["hour_meter_h"] != obj.hour_meter_h:
+            self.kept_meter += 1
+            fields["hour_meter_h"] = obj.hour_meter_h
+
+    def finish(self):
+        if self.errors.total:
+            return
+        if self.kept_status:
+            self.report.notes.append(
+                f"The status in the file differs for {self.kept_status} existing unit"
+                f"{'s' if self.kept_status != 1 else ''}; it was left as the rental desk and the workshop set it.")
+        if self.kept_meter:
+            self.report.notes.append(
+                f"The hour meter in the file differs for {self.kept_meter} existing unit"
+                f"{'s' if self.kept_meter != 1 else ''}; readings are taken at check-in, so the register's were kept.")
+
     def check(self, number, obj, fields, changed):
         ok = True
         out = Unit.Status.OUT
@@ -238,11 +262,6 @@ class _Units(_Handler):
             self.error(number, "year_made",
                        f"{obj.asset_tag} was made in {obj.year_made}; an import cannot change the year of "
                        f"manufacture (its original capacitors are dated from it).")
-            ok = False
-        if "status" in changed and out in (obj.status, fields["status"]):
-            self.error(number, "status",
-                       f"{obj.asset_tag} is '{obj.status}'; the status 'out' is set only by check-out and "
-                       f"check-in at the rental desk.")
             ok = False
         return ok
 
