@@ -187,3 +187,54 @@ def test_a_lone_carriage_return_inside_a_cell_is_named(db, tmp_path):
     refused(write(tmp_path, "loc.csv", text),
             "loc.csv, line 2: a carriage return (CR) stands alone inside a cell that is not in double quotes")
 
+
+# --- spreadsheet formulas -----------------------------------------------------------------------
+
+FORMULAS = ["=HYPERLINK(\"http://example.invalid\")", "+1+1", "-2+3+cmd|' /C calc'!A0", "@SUM(A1)",
+            "\tTabbed", "'=already quoted", "''+twice", "'plain quote", "a=b"]
+
+
+def test_export_neutralises_formulas_and_import_reads_them_back_exactly(fleet, tmp_path):
+    """OWASP "CSV Injection": a cell beginning with =, +, -, @, tab or CR may run as a formula in a
+    spreadsheet; a leading single quote makes it text.  Export then import must still round-trip."""
+    import csv
+    import io
+
+    from fleet.csvio import export_csv
+
+    units = list(Unit.objects.order_by("asset_tag"))
+    for unit, note in zip(units, FORMULAS):
+        unit.notes = note
+        unit.save(update_fields=["notes"])
+    Location.objects.filter(name="Main Store").update(name="=Main Store", notes="@home")
+    out = io.StringIO()
+    export_csv("units", out)
+    rows = list(csv.DictReader(io.StringIO(out.getvalue())))
+    exported = {r["asset_tag"]: (r["notes"], r["home_location"]) for r in rows}
+    for unit, note in zip(units, FORMULAS):
+        cell = exported[unit.asset_tag][0]
+        dangerous = cell[:1] in ("=", "+", "-", "@", "\t", "\r")
+        assert not dangerous, cell
+        assert cell == ("'" + note if note.lstrip("'")[:1] in "=+-@\t" else note)
+    assert "'=Main Store" in {v[1] for v in exported.values()}
+    out_loc = io.StringIO()
+    export_csv("locations", out_loc)
+    assert "'@home" in out_loc.getvalue() and "'=Main Store" in out_loc.getvalue()
+    # Read back: nothing changes.
+    write(tmp_path, "locations.csv", out_loc.getvalue())
+    write(tmp_path, "units.csv", out.getvalue())
+    assert import_csv(tmp_path / "locations.csv").unchanged == 3
+    assert import_csv(tmp_path / "units.csv").unchanged == 3
+    assert [u.notes for u in Unit.objects.order_by("asset_tag")] == FORMULAS[:3]
+    assert Location.objects.filter(name="=Main Store", notes="@home").exists()
+
+
+def test_the_due_list_csv_neutralises_formulas(fleet, capsys):
+    from django.core.management import call_command
+
+    Location.objects.filter(name="Main Store").update(name="=cmd|' /C calc'!A0")
+    Unit.objects.update(year_made=1960)  # original parts past the age limit: every unit is due
+    call_command("due_list", "--csv", "--within", "36500")
+    text = capsys.readouterr().out
+    assert "'=cmd|" in text
+    assert ",=cmd" not in text

@@ -36,11 +36,17 @@ What an import does besides writing the rows:
   already exist.  The report says when either happens.
 
 An import refuses to change a unit's gear model or year of manufacture
-(its capacitor population and their dates come from them), and to set or clear
-the status ``out``, which only check-out and check-in set.
+(its capacitor population and their dates come from them), and never changes
+an existing unit's status or a meter reading already taken: those belong to
+the rental desk and the workshop (a new unit cannot be ``out``).
+
+Export guards text cells a spreadsheet would run as formulas with a leading
+single quote, and import takes it off again (``cells.guard_formula``).
 
 The package, by concern: ``columns`` (the columns of each kind), ``cells``
-(reading and writing one cell), ``reading`` (lines, header, errors, report),
+(reading and writing one cell), ``records`` (the records and the lines each
+took: broken quotes, line endings, invisible characters in plain words),
+``reading`` (lines, header, errors, report),
 ``handlers`` (what every kind shares), ``kinds`` (one reader per kind),
 ``importer`` (one file, all or nothing) and ``writer`` (export).
 """

@@ -19,6 +19,31 @@ def _parse_choice(choices, text):
     raise ValueError(f"'{text}' is not one of: {', '.join(v for v, _ in choices.choices)}.")
 
 
+# Spreadsheets run a cell that begins with one of these as a formula (OWASP,
+# "CSV Injection"): an exported name or note could then run a command on the
+# manager's machine.  Export puts a single quote before such a cell (the
+# spreadsheet shows it as text) and import takes it off again; a cell that
+# already begins with quotes before such a character gets one more, so export
+# then import gives back exactly what was stored.
+FORMULA_STARTS = ("=", "+", "-", "@", "\t", "\r")
+FORMULA_GUARD = "'"
+
+
+def guard_formula(text: str) -> str:
+    """``text`` as a spreadsheet must not run it: a leading ``'`` before a
+    formula start (``=cmd()`` -> ``'=cmd()``)."""
+    if text and text.lstrip(FORMULA_GUARD).startswith(FORMULA_STARTS):
+        return FORMULA_GUARD + text
+    return text
+
+
+def unguard_formula(text: str) -> str:
+    """The inverse of :func:`guard_formula`."""
+    if text.startswith(FORMULA_GUARD) and text.lstrip(FORMULA_GUARD).startswith(FORMULA_STARTS):
+        return text[len(FORMULA_GUARD):]
+    return text
+
+
 def _in_range(day, text):
     if not EARLIEST_DATE <= day <= LATEST_DATE:
         raise ValueError(f"'{text}' is outside the years {_YEARS} the register keeps.")
@@ -80,6 +105,7 @@ def _parse_rated_temp(text):
 
 
 def _parse_cell(column, label, text):
+    text = unguard_formula(text)
     t = column.type
     if t == "key":
         return text.strip()
@@ -135,5 +161,5 @@ def _format_cell(column, value):
     if t == "capacitance":
         return V.format_rkm(value, milli=False)  # 2200u, not 2m2: as the cans are marked
     if t == "monthly":
-        return ";".join(_format_float(v) for v in value)
-    return str(value)
+        return guard_formula(";".join(_format_float(v) for v in value))
+    return guard_formula(str(value))

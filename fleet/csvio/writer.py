@@ -5,7 +5,7 @@ import io
 import os
 
 from ..models import GearModel, Location, Position, TemperatureSample, Unit
-from .cells import _format_cell
+from .cells import _format_cell, guard_formula
 from .columns import COLUMNS, KINDS
 
 #: Rows fetched from the database at a time.
@@ -64,7 +64,7 @@ def _write(f, columns, queryset, lookups):
         row = []
         for c in columns:
             if c.name in lookups:
-                row.append(lookups[c.name](obj))
+                row.append(guard_formula(lookups[c.name](obj)))
             else:
                 row.append(_format_cell(c, getattr(obj, c.model_field)))
         writer.writerow(row)

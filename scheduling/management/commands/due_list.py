@@ -5,6 +5,7 @@ import datetime as dt
 
 from django.core.management.base import BaseCommand, CommandError
 
+from fleet.csvio.cells import guard_formula
 from fleet.models import Unit
 from scheduling.services import forecast_refresh
 
@@ -49,7 +50,8 @@ class Command(BaseCommand):
         if options["csv"]:
             writer = csv.writer(self.stdout)
             writer.writerow(COLUMNS)
-            writer.writerows(rows)
+            # Managers open this in a spreadsheet: no cell may run as a formula.
+            writer.writerows([guard_formula(str(cell)) for cell in row] for row in rows)
             return
         for r in rows:
             self.stdout.write(f"{str(r[0]):>4} {r[1]:<12} {r[6]:<8} act by {r[7] or '-':<10} {r[2]} {r[3]} ({r[4]})")
