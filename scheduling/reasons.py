@@ -16,23 +16,50 @@ ROLE_WORDS = {
 }
 
 
+#: A date estimated backwards further than this many days is given as a year
+#: only ("since about 1993"): the even-ageing estimate is not worth a month.
+YEAR_ONLY_AFTER_DAYS = 730
+
+
 @functools.lru_cache(maxsize=4096)
 def _month(day):
-    return f"{day_to_date(day):%Y-%m}"
+    return f"{day_to_date(day):%b %Y}"
+
+
+@functools.lru_cache(maxsize=4096)
+def _month_of(month_index):
+    """``Apr 2027`` for a month counted from January 1970."""
+    year, m = divmod(int(month_index), 12)
+    return f"{MONTH_NAMES[m]} {1970 + year}"
+
+
+MONTH_NAMES = ("Jan", "Feb", "Mar", "Apr", "May", "Jun", "Jul", "Aug", "Sep", "Oct", "Nov", "Dec")
+
+
+def _since(day, today_day):
+    """``since about 1993`` (long ago: the year) or ``since about Mar 2025``."""
+    if today_day - day > YEAR_ONLY_AFTER_DAYS:
+        return f"since about {day_to_date(day).year}"
+    return f"since about {_month(int(np.floor(day)))}"
 
 
 def _when(day, today_day):
-    month = _month(int(np.floor(day)))
-    return f"since about {month}" if day < today_day else f"by {month}"
+    return _since(day, today_day) if day < today_day else f"by {_month(int(np.floor(day)))}"
+
+
+def _pct(p):
+    """A chance as the pages write it: ``23 %``, ``under 1 %``."""
+    return "under 1 %" if 0 < p < 0.005 else f"{p * 100:.0f} %"
 
 
 def _months(days):
-    """``YYYY-MM`` of each of ``days`` (float days since 1970-01-01; NaN and
-    infinities give ``''``), in one array step."""
+    """``Apr 2027`` for each of ``days`` (float days since 1970-01-01; NaN and
+    infinities give ``''``)."""
     days = np.asarray(days, dtype=float)
     ok = np.isfinite(days)
-    out = np.floor(np.where(ok, days, 0.0)).astype("int64").astype("datetime64[D]").astype("datetime64[M]")
-    return np.where(ok, out.astype(str), "").tolist()
+    index = np.floor(np.where(ok, days, 0.0)).astype("int64").astype("datetime64[D]").astype("datetime64[M]")
+    index = index.astype("int64").reshape(-1).tolist()
+    return [_month_of(i) if good else "" for i, good in zip(index, ok.reshape(-1).tolist())]
 
 
 def _position_name(fa, cache, pos):
@@ -44,14 +71,14 @@ def _position_name(fa, cache, pos):
 
 def _position_reason(fa, cache, pos, past, month, reach_day, today_day, damage, threshold):
     """Words for a capacitor at position ``pos``.  The wording is kept in
-    ``cache`` (one per forecast run) per (position, month, crossed?) as a
-    template, since the units of one gear model share their positions' words;
-    only the damage figures differ between units."""
-    key = (pos, None if past else month, threshold <= 0)
-    template = cache.get(key)
-    if template is None:
-        template = cache[key] = _position_reason_template(fa, pos, reach_day, today_day, threshold <= 0)
-    return template.format(damage=damage, threshold=threshold) if past else template
+    ``cache`` (one per forecast run) per (position, when, crossed?), since
+    the units of one gear model share their positions' words."""
+    when = _since(reach_day, today_day) if past else month
+    key = (pos, when, threshold <= 0)
+    text = cache.get(key)
+    if text is None:
+        text = cache[key] = _position_reason_template(fa, pos, reach_day, today_day, threshold <= 0)
+    return text
 
 
 def _position_reason_template(fa, pos, reach_day, today_day, threshold_is_zero):
@@ -68,11 +95,10 @@ def _position_reason_template(fa, pos, reach_day, today_day, threshold_is_zero):
     elif role == "signal_coupling" and not np.isnan(c["coupling_max_corner_hz"][pos]):
         what = f"bass roll-off would rise above {c['coupling_max_corner_hz'][pos]:g} Hz"
     else:
-        what = "reaches end-of-life drift (ESR doubled, capacitance down 20%)"
+        what = "reaches end-of-life drift (ESR doubled, capacitance down 20 %)"
     if reach_day < today_day:
-        what = what.replace("would rise", "has already risen").replace("would exceed", "already exceeds").replace(
-            "would sag", "already sags").replace("reaches", "past")
-        return f"{des} {ROLE_WORDS[role]}: {what}; damage {{damage:.1f}} against a limit of {{threshold:.2f}}"
+        what = what.replace("would rise", "has risen").replace("would exceed", "exceeds").replace(
+            "would sag", "sags").replace("reaches", "past")
     return f"{des} {ROLE_WORDS[role]}: {what} {_when(reach_day, today_day)}"
 
 
@@ -101,7 +127,7 @@ def _reasons(fa, policy, today_day, damage, threshold, reaches, risk, risk_day, 
     risk_month, age_month = _months(risk_day), _months(age_day)
     driver_pos = np.where(drivers >= 0, fa.position_index[np.maximum(drivers, 0)] if fa.n_caps else -1, -1).tolist()
     months_l = unpowered_months.tolist()
-    horizon, limit = f"{policy.horizon_days:g}", f"{policy.risk_limit:.0%}"
+    horizon, limit = f"{policy.horizon_days:g}", _pct(policy.risk_limit)
     years = f"{policy.calendar_age_years:g}"
     cache, names_cache = {}, {}
     out = []
@@ -113,10 +139,11 @@ def _reasons(fa, policy, today_day, damage, threshold, reaches, risk, risk_day, 
         if risk_says[u]:
             when = risk_day_l[u]
             if when <= today_day:
-                text = f"Chance of a capacitor fault within {horizon} days is {risk_l[u]:.0%} now (house limit {limit})"
+                text = (f"If it works today, chance of a fault within {horizon} days: {_pct(risk_l[u])} "
+                        f"(house limit {limit})")
             else:
-                text = (f"Chance of a capacitor fault within {horizon} days reaches {limit} by {risk_month[u]} "
-                        f"(now {risk_l[u]:.0%})")
+                text = (f"If it works today, chance of a fault within {horizon} days: {_pct(risk_l[u])}, "
+                        f"reaching the house limit of {limit} by {risk_month[u]}")
             names = [_position_name(fa, names_cache, pos) for pos in driver_pos[u] if pos >= 0]
             if names:
                 text += ", mostly from " + " and ".join(names)
@@ -129,8 +156,9 @@ def _reasons(fa, policy, today_day, damage, threshold, reaches, risk, risk_day, 
                                                      first_damage[u][j], first_threshold[u][j])))
         if age_says[u]:
             when = age_l[u]
-            items.append((when, f"Original capacitors pass {years} years of age "
-                                f"{'since about' if when < today_day else 'by'} {age_month[u]}"))
+            items.append((when, f"Original capacitors over {years} years old {_since(when, today_day)}"
+                                if when < today_day else f"Original capacitors reach {years} years of age by "
+                                f"{age_month[u]}"))
         if len(items) > 1:
             items.sort(key=lambda x: x[0])
         words = [w for _, w in items]
@@ -166,9 +194,9 @@ def action_words(action, why, role, *, share=None, age_years=None, age_limit_yea
     if why == WHY_AGE:
         return f"{verb}: original part {age_years:.0f} years old (house limit {age_limit_years:g} years)"
     if why == WHY_NEAR_LIMIT:
-        return f"{verb}: at {min(share, 1.0):.0%} of its limit; read its ESR and capacitance"
+        return f"{verb}: at {_pct(min(share, 1.0))} of its limit; read its ESR and capacitance"
     if why == WHY_RISK_SHARE:
         return f"{verb}: carries much of the unit's risk for its next hire; read its ESR and capacitance"
     if share is None:
         return verb
-    return f"{verb}: {min(share, 1.0):.0%} of its limit"
+    return f"{verb}: {_pct(min(share, 1.0))} of its limit"

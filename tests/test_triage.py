@@ -149,8 +149,8 @@ def test_each_action_has_a_line_of_why():
     assert action_words(T.REPLACE, T.WHY_AGE, "general", age_years=45.4, age_limit_years=40) == (
         "replace: original part 45 years old (house limit 40 years)")
     assert action_words(T.MEASURE, T.WHY_NEAR_LIMIT, "timing", share=0.81) == (
-        "measure: at 81% of its limit; read its ESR and capacitance")
-    assert action_words(T.LEAVE, T.WHY_FINE, "general", share=0.3) == "leave: 30% of its limit"
+        "measure: at 81 % of its limit; read its ESR and capacitance")
+    assert action_words(T.LEAVE, T.WHY_FINE, "general", share=0.3) == "leave: 30 % of its limit"
 
 
 # --- through the engine and the database ------------------------------------------------
