@@ -75,6 +75,9 @@ class UnitForecast(models.Model):
                                   help_text="Probability (0-1) of a fault during the next typical hire, "
                                             "given that the unit works now.")
     score = models.FloatField(default=0.0, help_text="Hire risk weighted by what the failing roles do to a hire.")
+    action_roles = models.PositiveIntegerField(
+        default=0, help_text="One bit per role code (scheduling.thresholds.ROLE_CODES) of the positions to "
+                             "replace or measure.")
     reasons = models.JSONField(default=list)
     positions = models.BinaryField(help_text="Per-position results, see scheduling/services.py")
 

@@ -158,6 +158,12 @@ FRAILTY_TABLE_POINTS = 601
 #: IEC 60335-1 as quoted in IEC Electropedia: 60 V d.c. (references.md §7).
 SAFE_VOLTAGE_V = 60.0
 
+#: The discharge resistor the safety figures are worked out for [ohm].  [CP]
+#: 10 kohm on insulated leads is a common bench choice for filter cans: at
+#: 500 V it draws 50 mA (25 W peak, a pulse a 5 W wirewound part takes) and
+#: brings 100 uF from 400 V to 60 V in about 2 s (references.md §7).
+DISCHARGE_RESISTOR_OHM = 10e3
+
 # --- Triage ------------------------------------------------------------------
 
 #: What a failing position's role does to a hire, 0..1, weighting its share of

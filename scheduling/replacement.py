@@ -99,3 +99,16 @@ def recommend(*, capacitance_uf, rated_voltage_v, rated_life_h, diameter_mm, mou
     return Replacement(capacitance_uf=float(f"{value:.6g}"), rated_voltage_v=volts, rated_temp_c=REPLACEMENT_TEMP_C,
                        rated_life_h=life, max_diameter_mm=float(diameter_mm), mount=mount,
                        low_esr=role in LOW_ESR_ROLES)
+
+
+def group_parts(items):
+    """Parts to order: ``items`` are ``(Replacement, where)`` pairs (``where``
+    says which unit and position, e.g. "CB-0008 C4"); the same part is counted
+    once with its quantity and every place it goes.  Sorted by mount, then
+    capacitance, then voltage.  Returns ``[(Replacement, quantity, [where...])]``."""
+    groups = {}
+    for part, where in items:
+        groups.setdefault(part, []).append(where)
+    order = sorted(groups, key=lambda p: (p.mount, p.capacitance_uf, p.rated_voltage_v, p.rated_life_h,
+                                          p.max_diameter_mm, p.low_esr))
+    return [(p, len(groups[p]), groups[p]) for p in order]

@@ -6,6 +6,7 @@ workflows in ``front.workflows`` call it).  It reads each table once, computes w
 it twice leaves the same rows.
 """
 
+import datetime as dt
 import json
 import time
 
@@ -21,17 +22,17 @@ from .loader import active_policy, load_fleet
 from .models import UnitForecast
 from .thermal import thermal_sync
 from .thresholds import ROLE_NAMES
-from .triage import ACTION_NAMES
+from .triage import ACTION_NAMES, LEAVE
 
 #: Layout of the per-position results stored in UnitForecast.positions.
 #: Single precision keeps six significant digits, more than the model's
 #: inputs carry, and halves what a nightly refresh writes.
 #: Each unit's blob starts with this tag; change it with the layout, so a blob
 #: written with another layout reads as empty until the next refresh.
-POSITION_LAYOUT = b"RP02"
+POSITION_LAYOUT = b"RP03"
 POSITION_DTYPE = np.dtype([
     ("capacitor_id", "<i8"), ("damage", "<f4"), ("esr_ohm", "<f4"), ("capacitance_f", "<f4"),
-    ("threshold", "<f4"), ("reaches_day", "<f4"), ("action", "i1"), ("why", "i1"),
+    ("threshold", "<f4"), ("reaches_day", "<f4"), ("action", "i1"), ("why", "i1"), ("rate_per_day", "<f4"),
 ])
 
 
@@ -129,6 +130,18 @@ def _day_dates(days):
     return [None if missing else d for d, missing in zip(out, np.isnan(days).tolist())]
 
 
+def action_role_masks(run):
+    """Per unit: one bit per role code (``1 << ROLE_CODES[role]``) of the
+    positions whose action is replace or measure, for filtering by role."""
+    fa, r = run.fleet, run.result
+    masks = np.zeros(fa.n_units, dtype=np.int64)
+    if fa.n_caps:
+        act = np.flatnonzero(r.action != LEAVE)
+        bits = np.left_shift(1, fa.pos_role[fa.position_index[act]].astype(np.int64))
+        np.bitwise_or.at(masks, fa.unit_index[act], bits)
+    return masks
+
+
 def _store(run):
     """Upsert one UnitForecast row per unit in a single statement.
 
@@ -147,6 +160,7 @@ def _store(run):
     packed["reaches_day"] = r.reaches_day[order]
     packed["action"] = r.action[order]
     packed["why"] = r.why[order]
+    packed["rate_per_day"] = r.rate_per_day[order]
     blob = packed.tobytes()
     size = POSITION_DTYPE.itemsize
     bounds = zip((run._starts * size).tolist(), (run._ends * size).tolist())
@@ -162,9 +176,11 @@ def _store(run):
     priority = [p or None for p in r.priority.tolist()]
     hire_risk = r.hire_risk.astype(float).tolist()
     score = r.score.astype(float).tolist()
+    roles = action_role_masks(run).tolist()
 
     columns = ["unit_id", "computed_at", "status", "due_date", "risk", "horizon_days", "max_damage_ratio",
-               "storage_reform", "reasons", "positions", "act_by", "priority", "hire_risk", "score"]
+               "storage_reform", "reasons", "positions", "act_by", "priority", "hire_risk", "score",
+               "action_roles"]
     qn = connection.ops.quote_name
     table = qn(UnitForecast._meta.db_table)
     updates = ", ".join(f"{qn(c)} = excluded.{qn(c)}" for c in columns[1:])
@@ -179,12 +195,12 @@ def _store(run):
             raw = psycopg.Cursor(connection.connection)
             started = time.monotonic()
             raw.execute(
-                insert + "SELECT u, %b, s, d, r, %b::integer, m, f, j::jsonb, p, a, o, h, c FROM unnest("
+                insert + "SELECT u, %b, s, d, r, %b::integer, m, f, j::jsonb, p, a, o, h, c, k FROM unnest("
                 "%b::bigint[], %b::text[], %b::date[], %b::float8[], %b::float8[], %b::bool[], %b::text[], "
-                "%b::bytea[], %b::date[], %b::integer[], %b::float8[], %b::float8[]) "
-                "AS x(u, s, d, r, m, f, j, p, a, o, h, c) " + conflict,
+                "%b::bytea[], %b::date[], %b::integer[], %b::float8[], %b::float8[], %b::integer[]) "
+                "AS x(u, s, d, r, m, f, j, p, a, o, h, c, k) " + conflict,
                 [now, horizon, unit_ids, list(r.status), due, risk, ratio, reform, reasons, positions,
-                 act_by, priority, hire_risk, score],
+                 act_by, priority, hire_risk, score, roles],
             )
             raw.close()
             if connection.queries_logged:  # a raw cursor: log it as Django's own cursors do
@@ -197,10 +213,10 @@ def _store(run):
             act_text = [None if d is None else d.isoformat() for d in act_by]
             cursor.executemany(
                 insert + f"VALUES ({', '.join(['%s'] * len(columns))}) " + conflict,
-                [(uid, computed_at, s, d, rk, horizon, m, f, j, p, a, o, h, c)
-                 for uid, s, d, rk, m, f, j, p, a, o, h, c
+                [(uid, computed_at, s, d, rk, horizon, m, f, j, p, a, o, h, c, k)
+                 for uid, s, d, rk, m, f, j, p, a, o, h, c, k
                  in zip(unit_ids, r.status, due_text, risk, ratio, reform, reasons, positions, act_text, priority,
-                        hire_risk, score)],
+                        hire_risk, score, roles)],
             )
     return len(unit_ids)
 
@@ -239,3 +255,48 @@ def stored_positions(forecast):
         # Written with another layout: show nothing until the next refresh rewrites it.
         return np.zeros(0, dtype=POSITION_DTYPE)
     return np.frombuffer(blob, dtype=POSITION_DTYPE, offset=tag)
+
+
+#: The life chart: how far ahead of today it looks [years], and how many of a
+#: unit's positions it draws (those nearest their limits).
+TRAJECTORY_YEARS_AHEAD = 10
+TRAJECTORY_POSITIONS = 4
+
+
+def unit_trajectory(*, forecast, installed_on, damage_limit, positions=TRAJECTORY_POSITIONS,
+                    years_ahead=TRAJECTORY_YEARS_AHEAD):
+    """Damage of a unit's worst positions and its risk over time, from the
+    earliest of their install dates to ``years_ahead`` after the day of its
+    stored ``forecast`` (``scheduling.trajectory``).
+
+    ``installed_on`` maps capacitor id to install date and ``damage_limit``
+    is the policy's (the page has both already; nothing is read here).  Returns ``(trajectory,
+    capacitor ids of the drawn positions)``, or ``None`` without a stored
+    forecast in the current layout.
+    """
+    from .trajectory import risk_at, trajectory
+
+    if forecast is None:
+        return None
+    rec = stored_positions(forecast)
+    keep = np.array([int(c) in installed_on for c in rec["capacitor_id"]], dtype=bool)
+    rec = rec[keep]
+    if rec.size == 0:
+        return None
+    today = timezone.localdate(forecast.computed_at)
+    today_day = float((today - dt.date(1970, 1, 1)).days)
+    installed = np.array([float((installed_on[int(c)] - dt.date(1970, 1, 1)).days) for c in rec["capacitor_id"]])
+    damage, rate = rec["damage"].astype(float), rec["rate_per_day"].astype(float)
+    threshold = rec["threshold"].astype(float)
+    limit = damage_limit * threshold
+    share = np.divide(damage, limit, out=np.full(damage.size, np.inf), where=limit > 0)
+    worst = np.lexsort((-rate, -share))[:positions]
+    start = float(installed[worst].min())
+    end = today_day + years_ahead * 365.25
+    curves = trajectory(damage_now=damage[worst], rate_per_day=rate[worst], threshold=threshold[worst],
+                        installed_day=installed[worst], today_day=today_day, damage_limit=damage_limit,
+                        horizon_days=forecast.horizon_days, start_day=start, end_day=end)
+    # The unit's risk counts every position, not only the ones drawn.
+    curves.risk = risk_at(curves.days, damage_now=damage, rate_per_day=rate, threshold=threshold,
+                          installed_day=installed, today_day=today_day, horizon_days=forecast.horizon_days)
+    return curves, [int(c) for c in rec["capacitor_id"][worst]]
