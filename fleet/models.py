@@ -140,6 +140,9 @@ class GearModel(models.Model):
     hazard_mains = models.BooleanField("mains-powered", default=True)
     hazard_tube_hv = models.BooleanField("tube high voltage", default=False)
     hazard_smps = models.BooleanField("switch-mode supply", default=False)
+    hazard_notes = models.TextField(
+        blank=True, help_text="What inside this model can hurt a technician, in words (shown on every unit's "
+                              "page and in the workshop), e.g. the B+ voltage of a valve amp.")
     notes = models.TextField(blank=True)
 
     class Meta:

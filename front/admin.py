@@ -110,7 +110,7 @@ class GearModelAdmin(admin.ModelAdmin):
     fieldsets = (
         (None, {"fields": ("maker", "model_name", "category", ("year_from", "year_to"))}),
         ("Use and heat", {"fields": ("internal_rise_k", "powered_hours_per_day")}),
-        ("Hazards", {"fields": ("mains_voltage_v", "hazard_mains", "hazard_tube_hv", "hazard_smps")}),
+        ("Hazards", {"fields": ("mains_voltage_v", "hazard_mains", "hazard_tube_hv", "hazard_smps", "hazard_notes")}),
         (None, {"fields": ("notes",)}),
     )
     inlines = [PositionInline]
