@@ -13,7 +13,7 @@ from django.utils import timezone
 from scheduling.models import UnitForecast
 
 from . import selectors
-from fleet.models import AMBIENT_MAX_C, AMBIENT_MIN_C, Unit
+from fleet.models import AMBIENT_MAX_C, AMBIENT_MIN_C, Role, Unit
 
 FUTURE_SLACK = dt.timedelta(minutes=5)
 
@@ -198,6 +198,20 @@ class UnitFilterForm(PlainForm):
                                  choices=[("", "Any")] + list(selectors.FORECAST_FILTERS))
     gear_model = forms.ModelChoiceField(label="Gear model", required=False, queryset=None, empty_label="Any")
     location = forms.ModelChoiceField(label="Home location", required=False, queryset=None, empty_label="Any")
+
+    def __init__(self, *args, **kwargs):
+        super().__init__(*args, **kwargs)
+        self.fields["gear_model"].queryset = selectors.gear_model_choices()
+        self.fields["location"].queryset = selectors.location_choices()
+
+
+class WorkshopFilterForm(PlainForm):
+    """The filters of the workshop's triage list (GET)."""
+
+    gear_model = forms.ModelChoiceField(label="Gear model", required=False, queryset=None, empty_label="Any")
+    location = forms.ModelChoiceField(label="Home location", required=False, queryset=None, empty_label="Any")
+    role = forms.ChoiceField(label="Part to work on", required=False,
+                             choices=[("", "Any role")] + [(v, label) for v, label in Role.choices])
 
     def __init__(self, *args, **kwargs):
         super().__init__(*args, **kwargs)

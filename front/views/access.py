@@ -50,17 +50,12 @@ manager_required = role_required(MANAGER, audience=MANAGER)
 staff_required = role_required(*ROLES, audience="any")
 
 
-def _role_flags(request):
-    roles = user_roles(request.user)
-    return {
-        "is_desk": bool(roles & {DESK, MANAGER}),
-        "is_technician": bool(roles & {TECHNICIAN, MANAGER}),
-        "is_manager": MANAGER in roles,
-        "role_names": [ROLE_LABELS[r] for r in ROLES if r in roles],
-    }
-
-
 def page(request, template, context=None, status=200):
-    ctx = _role_flags(request)
-    ctx.update(context or {})
-    return render(request, template, ctx, status=status)
+    """Render a page (the role flags come from ``front.context_processors.roles``)."""
+    return render(request, template, context or {}, status=status)
+
+
+def not_found(request, message):
+    """The app's own 404 page, also with DEBUG on (Django's debug page would
+    show instead of it for a raised Http404)."""
+    return page(request, "404.html", {"exception": message}, status=404)

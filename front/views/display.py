@@ -1,55 +1,50 @@
-"""Numbers, values and words as the pages show them."""
+"""What the pages show of a unit's forecast: each position's action and why,
+its predicted state in plain numbers and words, the unit's hazards.
 
-import math
+Formatting itself (µF, Ω, °C, dates, percentages, "over 2x rated life") is
+``reports.formatting``, shared with the printed sheets.
+"""
+
 import re
 
-from fleet import values
+from django.utils import timezone
+
+from reports import formatting as fmt
+from scheduling import parameters as P
 from scheduling.days import day_to_date
+from scheduling.hazards import charged_parts
 from scheduling.models import UnitForecast
+from scheduling.reasons import action_words
 from scheduling.services import stored_positions
-from scheduling.thresholds import DAMAGE_THRESHOLD_CAP as DRIFT_MODEL_MAX_DAMAGE
+from scheduling.triage import ACTION_NAMES, LEAVE, MEASURE, REPLACE
 
-
-def _plain_number(value, significant=3):
-    """A number to ``significant`` figures without an exponent or trailing zeros."""
-    if value == 0:
-        return "0"
-    digits = significant - 1 - math.floor(math.log10(abs(value)))
-    rounded = round(value, digits)
-    text = f"{rounded:.{max(digits, 0)}f}"
-    if "." in text:
-        text = text.rstrip("0").rstrip(".")
-    return text
+#: Order of the actions on the pages: what to do first at the top.
+ACTION_ORDER = {REPLACE: 0, MEASURE: 1, LEAVE: 2}
+ACTION_LABELS = {REPLACE: "Replace", MEASURE: "Measure", LEAVE: "Leave"}
 
 
 def format_capacitance(uf):
-    """Capacitance stored in uF, written the way parts are marked:
-    4.7 -> "4.7 uF", 0.47 -> "470 nF", 4.7e-5 -> "47 pF", 2200 -> "2200 uF"."""
-    if uf is None:
-        return ""
-    try:
-        return values.format_capacitance(uf)
-    except ValueError:
-        return f"{uf:g} uF"
+    """Capacitance stored in µF, written the way parts are marked:
+    4.7 -> "4.7 µF", 0.47 -> "470 nF", 4.7e-5 -> "47 pF", 2200 -> "2200 µF"."""
+    return fmt.capacitance(uf)
 
 
 def format_number(value, unit=""):
     if value is None:
         return ""
-    text = f"{value:,.1f}".rstrip("0").rstrip(".") if abs(value) < 1e6 else f"{value:,.0f}"
-    return f"{text} {unit}".strip()
+    return f"{fmt.plain_number(value, 4)} {unit}".strip()
 
 
 def hazard_words(gear_model):
-    """What inside the unit can hurt, in words."""
+    """What inside the unit can hurt, in words: only what this model has."""
     words = []
     if gear_model.hazard_mains:
         volts = f" ({gear_model.mains_voltage_v:g} V a.c.)" if gear_model.mains_voltage_v else ""
         words.append(f"Mains voltage inside{volts}")
     if gear_model.hazard_tube_hv:
-        words.append("Tube high voltage: lethal even when switched off")
+        words.append("Tube high voltage: lethal, and it stays charged after switching off and unplugging")
     if gear_model.hazard_smps:
-        words.append("Switch-mode supply: primary side at rectified mains voltage")
+        words.append("Switch-mode supply: its primary side sits at rectified mains voltage")
     if not words:
         words.append("No mains inside (external low-voltage supply); charged capacitors can still hurt")
     return words
@@ -62,69 +57,232 @@ def designator_key(designator):
     return (prefix.upper(), int(number) if number else -1, rest)
 
 
-def _predicted_by_capacitor(forecast):
-    """{capacitor id: predicted figures} from a stored forecast (empty without one)."""
-    if forecast is None:
-        return {}
-    out = {}
-    for rec in stored_positions(forecast):
-        reach = float(rec["reaches_day"])
-        out[int(rec["capacitor_id"])] = {
-            "damage": float(rec["damage"]),
-            "threshold": float(rec["threshold"]),
-            "esr_ohm": float(rec["esr_ohm"]),
-            "capacitance_uf": float(rec["capacitance_f"]) * 1e6,
-            "reaches_on": None if reach != reach else day_to_date(reach),
-        }
-    return out
+def unit_forecast(unit):
+    try:
+        return unit.forecast
+    except UnitForecast.DoesNotExist:
+        return None
 
 
-def capacitor_rows(capacitors, forecast=None):
-    capacitors = sorted(capacitors, key=lambda c: designator_key(c.position.designator))
-    predicted = _predicted_by_capacitor(forecast)
-    return [
-        {
-            "predicted": _predicted_row(predicted.get(c.pk), forecast),
+# --- positions ------------------------------------------------------------------------
+
+
+def _circuit_figures(position):
+    return dict(min_rail_v=position.pump_min_rail_v, ripple_limit_v=position.reservoir_ripple_limit_v,
+                max_corner_hz=position.coupling_max_corner_hz)
+
+
+def _why(action, why, role, share, cap, today, calendar_age_years):
+    """The reason of an action, without its verb: "negative rail below 3.25 V …"."""
+    line = action_words(action, why, role, share=share, age_years=fmt.age_years(cap.installed_on, today),
+                        age_limit_years=calendar_age_years, **_circuit_figures(cap.position))
+    return line.split(": ", 1)[1] if ": " in line else ""
+
+
+def position_plan(capacitors, forecast, *, damage_limit, calendar_age_years, today=None):
+    """One row per fitted capacitor: the part, its action and why, and its
+    predicted state in words, in designator order (see :func:`by_action`).
+
+    ``capacitors`` are ``UnitCapacitor`` rows with their positions; a
+    capacitor the stored forecast does not know (no forecast yet, or fitted
+    since) gets ``predicted = None``.
+    """
+    today = today or timezone.localdate()
+    predicted = {}
+    if forecast is not None:
+        for rec in stored_positions(forecast):
+            predicted[int(rec["capacitor_id"])] = rec
+    rows = []
+    for c in sorted(capacitors, key=lambda c: designator_key(c.position.designator)):
+        rec = predicted.get(c.pk)
+        row = {
+            "id": c.pk,
             "designator": c.position.designator,
-            "role": c.position.get_role_display(),
-            "capacitance": format_capacitance(c.capacitance_uf),
-            "voltage": f"{c.rated_voltage_v:g} V",
-            "temperature": f"{c.rated_temp_c:g} °C",
-            "endurance": f"{format_number(c.rated_life_h)} h",
+            "role": c.position.role,
+            "role_label": c.position.get_role_display(),
+            "part": f"{fmt.capacitance(c.capacitance_uf)} {fmt.volts(c.rated_voltage_v)} "
+                    f"{fmt.temperature(c.rated_temp_c)}",
+            "endurance": fmt.hours(c.rated_life_h),
             "installed_on": c.installed_on,
             "original": c.is_original,
+            "rated_voltage_v": c.rated_voltage_v,
+            "action": None,
         }
-        for c in capacitors
-    ]
+        if rec is not None:
+            row.update(_predicted(rec, c, today, damage_limit, calendar_age_years, forecast))
+        rows.append(row)
+    return rows
 
 
-def _predicted_row(p, forecast):
-    if p is None:
-        return None
-    share = p["damage"] / p["threshold"] if p["threshold"] > 0 else None
+def _predicted(rec, cap, today, damage_limit, calendar_age_years, forecast):
+    damage, threshold = float(rec["damage"]), float(rec["threshold"])
+    limit = damage_limit * threshold
+    share = damage / limit if limit > 0 else None
+    action, why = int(rec["action"]), int(rec["why"])
+    reach = float(rec["reaches_day"])
+    reaches_on = None if reach != reach else day_to_date(reach)
+    beyond = damage > fmt.MODEL_RANGE_DAMAGE
+    computed = timezone.localdate(forecast.computed_at)
+    if reaches_on is None:
+        reaches = "not within 20 years"
+    elif reaches_on <= computed:
+        reaches = f"since {fmt.estimated_past(reaches_on, today)}"
+    else:
+        reaches = fmt.date_ahead(reaches_on, today)
     return {
-        "damage": f"{p['damage']:.2f}",
-        "threshold": f"{p['threshold']:.2f}",
-        "used_percent": None if share is None else f"{min(share, 9.99) * 100:.0f}%",
+        "action": action,
+        "action_name": ACTION_NAMES[action],
+        "action_label": ACTION_LABELS[action],
+        "why": _why(action, why, cap.position.role, share, cap, today, calendar_age_years),
+        "share": share if share is not None else float("inf"),
+        "life_used": fmt.life_used(damage, limit),
         "over": share is None or share >= 1,
-        "esr": f"{p['esr_ohm']:.3g} Ω",
-        "capacitance": format_capacitance(float(f"{p['capacitance_uf']:.3g}")),
-        # the drift laws are calibrated at damage 1; far past it the figures mean little
-        "beyond": p["damage"] > DRIFT_MODEL_MAX_DAMAGE,
-        "reaches_on": p["reaches_on"],
-        "past": p["reaches_on"] is not None and forecast is not None
-                and p["reaches_on"] <= forecast.computed_at.date(),
+        # past the range the drift laws are calibrated for, the figures mean little: say so
+        "esr_now": "over 4x new" if beyond else fmt.resistance(float(f"{float(rec['esr_ohm']):.3g}")),
+        "capacitance_now": "under 60 %" if beyond else fmt.capacitance(float(rec["capacitance_f"]) * 1e6),
+        "beyond": beyond,
+        "reaches": reaches,
+        "reached": reaches_on is not None and reaches_on <= computed,
+        "damage": damage,
+        "limit": limit,
     }
 
 
-def forecast_display(forecast):
+def _impact(row):
+    return P.ROLE_HIRE_IMPACT.get(row["role"], 0.0)
+
+
+def by_action(rows):
+    """Replace first, then measure, then leave; within each the roles that
+    hurt a hire most (``parameters.ROLE_HIRE_IMPACT``), then the parts
+    furthest past their limit."""
+    def key(r):
+        action = r["action"] if r["action"] is not None else LEAVE
+        return (ACTION_ORDER[action], -_impact(r), r["role"], -r.get("share", 0.0),
+                designator_key(r["designator"]))
+    return sorted(rows, key=key)
+
+
+def by_role(rows):
+    """Groups ``[(role label, rows)]``, the roles that hurt a hire most first,
+    each in action order."""
+    groups = {}
+    for row in by_action(rows):
+        groups.setdefault((-_impact(row), row["role_label"]), []).append(row)
+    return [(label, group) for (_, label), group in sorted(groups.items())]
+
+
+def action_counts(rows):
+    counts = {REPLACE: 0, MEASURE: 0, LEAVE: 0}
+    for r in rows:
+        if r["action"] is not None:
+            counts[r["action"]] += 1
+    return {"replace": counts[REPLACE], "measure": counts[MEASURE], "leave": counts[LEAVE]}
+
+
+def todo_line(rows, *, shown=3):
+    """What to do with a unit, in one line: "Replace C4, C5 and 23 more,
+    measure 3: C4 negative rail below 3.25 V at today's predicted ESR"."""
+    ordered = [r for r in by_action(rows) if r["action"] in (REPLACE, MEASURE)]
+    if not ordered:
+        return ""
+    replace = [r["designator"] for r in ordered if r["action"] == REPLACE]
+    measure = [r["designator"] for r in ordered if r["action"] == MEASURE]
+    parts = []
+    for verb, names in (("replace", replace), ("measure", measure)):
+        if not names:
+            continue
+        listed = ", ".join(names[:shown]) if not parts else ""
+        more = len(names) - shown
+        if parts:
+            parts.append(f"{verb} {len(names)}")
+        else:
+            parts.append(f"{verb.capitalize()} {listed}" + (f" and {more} more" if more > 0 else ""))
+    first = ordered[0]
+    # the verb already says to take a reading
+    short = first.get("why", "").split("; read its", 1)[0]
+    why = f": {first['designator']} {short}" if short else ""
+    return ", ".join(parts) + why
+
+
+# --- safety -----------------------------------------------------------------------------------
+
+
+def charged(capacitors):
+    """The unit's parts rated above 60 V: energy and the time to fall below
+    60 V through the stated discharge resistor, most energy first."""
+    caps = sorted(capacitors, key=lambda c: designator_key(c.position.designator))
+    parts = charged_parts(designators=[c.position.designator for c in caps],
+                          capacitance_uf=[c.capacitance_uf for c in caps],
+                          rated_voltage_v=[c.rated_voltage_v for c in caps])
+    return [{
+        "designator": p.designator,
+        "part": f"{fmt.capacitance(p.capacitance_uf)} {fmt.volts(p.voltage_v)}",
+        "energy": fmt.energy(p.energy_j),
+        "energy_j": p.energy_j,
+        "discharge": fmt.seconds(p.discharge_s),
+    } for p in parts]
+
+
+def safety(unit, capacitors):
+    """Everything the safety box of a unit says, specific to its model and parts."""
+    gm = unit.gear_model
+    parts = charged(capacitors)
+    return {
+        "hazards": hazard_words(gm),
+        "notes": gm.hazard_notes,
+        "tube": gm.hazard_tube_hv,
+        "mains": gm.hazard_mains,
+        "charged": parts,
+        "safe_v": fmt.volts(P.SAFE_VOLTAGE_V),
+        "resistor": fmt.resistance(P.DISCHARGE_RESISTOR_OHM),
+    }
+
+
+def safety_line(gear_model, parts):
+    """The safety of a unit in one line for a list: "Tube high voltage ·
+    5 parts above 60 V, up to 12.5 J"."""
+    words = []
+    if gear_model.hazard_tube_hv:
+        words.append("Tube high voltage")
+    elif gear_model.hazard_smps:
+        words.append("Switch-mode primary")
+    elif gear_model.hazard_mains:
+        words.append("Mains inside")
+    else:
+        words.append("Low-voltage supply")
+    if parts:
+        n = len(parts)
+        words.append(f"{n} part{'s' if n != 1 else ''} above {fmt.volts(P.SAFE_VOLTAGE_V)}, "
+                     f"up to {fmt.energy(max(p.energy_j for p in parts))}")
+    return " · ".join(words)
+
+
+# --- the forecast in words ---------------------------------------------------------------------------
+
+
+def forecast_display(forecast, *, needing_work=None, today=None):
+    """The unit's forecast as the pages say it; ``needing_work`` is how many
+    units have a priority (for "priority 3 of 41")."""
     if forecast is None:
         return None
+    today = today or timezone.localdate()
+    due = forecast.due_date
     return {
         "status": forecast.status,
         "label": forecast.get_status_display(),
-        "due_date": forecast.due_date,
-        "risk_percent": _plain_number(forecast.risk * 100, 2) if forecast.risk is not None else "",
+        "due_date": due,
+        "past_limit": (f"past its limit since {fmt.estimated_past(due, today)}"
+                       if due is not None and due < today else None),
+        # None: no recap due within FAR_YEARS (or none at all)
+        "due_words": None if due is None or fmt.is_far(due, today) else fmt.date(due),
+        "act_by": forecast.act_by,
+        "act_by_words": fmt.today_or_date(forecast.act_by, today),
+        "priority": forecast.priority,
+        "needing_work": needing_work,
+        "risk": fmt.risk_sentence(forecast.risk, forecast.horizon_days),
+        "risk_percent": fmt.percent(forecast.risk),
+        "hire_risk": fmt.hire_risk_sentence(forecast.hire_risk),
         "horizon_days": forecast.horizon_days,
         "reasons": list(forecast.reasons or []),
         "computed_at": forecast.computed_at,
@@ -132,8 +290,35 @@ def forecast_display(forecast):
     }
 
 
-def unit_forecast(unit):
-    try:
-        return unit.forecast
-    except UnitForecast.DoesNotExist:
-        return None
+def desk_card(unit, forecast, rentals, today=None):
+    """May the unit go out? The desk's answer in a word, a headline and details."""
+    today = today or timezone.localdate()
+    status = unit.status
+    last_back = next((r for r in rentals if r.in_at is not None), None)
+    open_hire = next((r for r in rentals if r.in_at is None), None)
+    due = forecast is not None and forecast.status in (UnitForecast.Status.DUE, UnitForecast.Status.OVERDUE)
+    if status == "out" and open_hire is not None:
+        return {"go": True, "word": "Out on hire",
+                "headline": f"Out on job {open_hire.job_ref} since {fmt.moment(timezone.localtime(open_hire.out_at))}",
+                "details": [f"Out for {fmt.duration((timezone.now() - open_hire.out_at).total_seconds() / 3600)} so far."]}
+    if status == "retired":
+        return {"go": False, "word": "Retired", "headline": "Retired: not for hire", "details": []}
+    if status in ("hold", "bench"):
+        details = []
+        if last_back is not None and last_back.reported_faults:
+            details.append(f"Fault reported on return {fmt.date(timezone.localdate(last_back.in_at))}: "
+                           f"{last_back.reported_faults}")
+        if due:
+            details.append(f"Recap {forecast.get_status_display().lower()}.")
+        where = "on the bench" if status == "bench" else "held for the workshop"
+        return {"go": False, "word": "Do not hire out", "headline": f"{unit.asset_tag} is {where}",
+                "details": details or ["Ask the workshop when it will be ready."]}
+    if due:
+        return {"go": False, "word": "Check with the workshop",
+                "headline": f"Recap {forecast.get_status_display().lower()}: it should stay in",
+                "details": ["Send it out only if the workshop agrees; the check-out asks for a reason."]}
+    if forecast is not None and forecast.status == UnitForecast.Status.WATCH:
+        return {"go": True, "word": "May go out",
+                "headline": f"May go out; recap coming up by {fmt.date_ahead(forecast.due_date, today)}",
+                "details": []}
+    return {"go": True, "word": "May go out", "headline": f"{unit.asset_tag} may go out", "details": []}
