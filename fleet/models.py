@@ -9,12 +9,14 @@ several rows lives in ``fleet/services.py``.
 """
 
 import datetime as dt
+import math
 
 from django.conf import settings
 from django.core.exceptions import ValidationError
 from django.core.validators import MaxValueValidator, MinValueValidator, RegexValidator
 from django.db import models
 from django.db.models import F, Q
+from django.utils import timezone
 
 RATED_TEMP_MIN_C = -55.0
 RATED_TEMP_MAX_C = 150.0
@@ -200,8 +202,17 @@ class CapacitorRatings(models.Model):
             errors["esr_ohm"] = "ESR must be above zero."
         if self.tan_delta is not None and not 0 < self.tan_delta < 5:
             errors["tan_delta"] = "Tan delta must lie between 0 and 5."
+        if not errors:
+            errors.update(self.implausible())
         if errors:
             raise ValidationError(errors)
+
+    def implausible(self, ripple_current_a=0.0):
+        """{field: message} for figures no real aluminium electrolytic capacitor
+        has (see ``fleet/plausibility.py``).  Empty when plausible."""
+        from .plausibility import ratings_implausible
+
+        return ratings_implausible(self, ripple_current_a)
 
     def clean(self):
         self.clean_ratings()
@@ -290,6 +301,11 @@ class Position(CapacitorRatings):
         Role.SUPPLY_RESERVOIR: ("reservoir_load_a", "reservoir_ripple_freq_hz", "reservoir_ripple_limit_v"),
     }
 
+    #: Circuit figures the life engine divides by, and those it only adds.
+    CIRCUIT_POSITIVE = ("pump_freq_hz", "pump_min_rail_v", "coupling_load_ohm", "coupling_max_corner_hz",
+                        "reservoir_ripple_freq_hz", "reservoir_ripple_limit_v", "ripple_freq_hz")
+    CIRCUIT_NONNEGATIVE = ("pump_input_v", "pump_load_a", "pump_switch_ohm", "reservoir_load_a")
+
     def clean(self):
         errors = {}
         try:
@@ -306,6 +322,16 @@ class Position(CapacitorRatings):
                 errors[field] = "Cannot be negative."
         if self.operating_voltage_v and self.rated_voltage_v and self.operating_voltage_v > self.rated_voltage_v:
             errors["operating_voltage_v"] = "Operating voltage is above the part's rated voltage."
+        for field in self.CIRCUIT_POSITIVE:
+            value = getattr(self, field)
+            if value is not None and not (math.isfinite(value) and value > 0):
+                errors[field] = "Must be above zero."
+        for field in self.CIRCUIT_NONNEGATIVE:
+            value = getattr(self, field)
+            if value is not None and not (math.isfinite(value) and value >= 0):
+                errors[field] = "Cannot be negative."
+        if not errors and self.ripple_current_a:
+            errors.update(self.implausible(ripple_current_a=self.ripple_current_a))
         if errors:
             raise ValidationError(errors)
 
@@ -355,6 +381,8 @@ class Unit(models.Model):
         return self.asset_tag
 
     def clean(self):
+        if self.joined_on and not EARLIEST_DATE <= self.joined_on <= LATEST_DATE:
+            raise ValidationError({"joined_on": f"Give a date between {EARLIEST_DATE.year} and {LATEST_DATE.year}."})
         if self.joined_on and self.year_made and self.joined_on.year < self.year_made:
             raise ValidationError({"joined_on": "A unit cannot join the fleet before it was made."})
 
@@ -432,6 +460,20 @@ class Rental(models.Model):
 
     def clean(self):
         errors = {}
+        for name in ("out_at", "in_at"):
+            moment = getattr(self, name)
+            if moment is not None and not EARLIEST_DATE <= moment.date() <= LATEST_DATE:
+                errors[name] = f"Give a date between {EARLIEST_DATE.year} and {LATEST_DATE.year}."
+        if errors:
+            raise ValidationError(errors)
+        unit = self.unit if self.unit_id else None
+        if unit is not None and self.out_at is not None:
+            local_day = timezone.localdate(self.out_at)
+            if unit.joined_on and local_day < unit.joined_on:
+                errors["out_at"] = (f"{unit.asset_tag} joined the fleet on {unit.joined_on:%d %b %Y}; "
+                                    f"it cannot have gone out before that.")
+            elif unit.year_made and local_day.year < unit.year_made:
+                errors["out_at"] = f"{unit.asset_tag} was made in {unit.year_made}; it cannot have gone out before that."
         if self.in_at is not None:
             if self.in_at <= self.out_at:
                 errors["in_at"] = "Check-in must come after check-out."

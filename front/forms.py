@@ -13,7 +13,7 @@ from django.utils import timezone
 from scheduling.models import UnitForecast
 
 from . import selectors
-from fleet.models import AMBIENT_MAX_C, AMBIENT_MIN_C, Role, Unit
+from fleet.models import AMBIENT_MAX_C, AMBIENT_MIN_C, EARLIEST_DATE, Role, Unit
 
 FUTURE_SLACK = dt.timedelta(minutes=5)
 
@@ -102,6 +102,8 @@ class DeskForm(PlainForm):
         value = self.cleaned_data.get(name)
         if value is not None and value > timezone.now() + FUTURE_SLACK:
             raise forms.ValidationError("That time is in the future; leave it empty for now.")
+        if value is not None and value.date() < EARLIEST_DATE:
+            raise forms.ValidationError(f"That date is before {EARLIEST_DATE.year}; check the year.")
         return value
 
     def focus(self):

@@ -152,6 +152,32 @@ FRAILTY_GRID_POINTS = 1201
 FRAILTY_LN_HAZARD_MAX = 30.0
 FRAILTY_TABLE_POINTS = 601
 
+# --- Plausibility of a part's figures (physics.plausibility) -----------------
+
+#: Widest range of rated charge per can volume (capacitance x rated voltage
+#: over the can's volume) a real aluminium electrolytic capacitor has
+#: [uC/cm^3].  [M] series data sheets put general-purpose parts between about
+#: 20 (0.1 uF 50 V in 5 x 11 mm) and 15,000 (low-voltage high-capacitance
+#: cans); the bounds are about twenty and seven times beyond, to catch
+#: figures wrong by orders of magnitude (1 pF typed for 1 uF), not poor parts.
+CHARGE_DENSITY_MIN_UC_PER_CM3 = 1.0
+CHARGE_DENSITY_MAX_UC_PER_CM3 = 1.0e5
+
+#: Range of tan delta at 120 Hz an ESR may imply (``2 pi f C ESR``).  [M]
+#: data sheets give tan delta of about 0.05-0.3 at 120 Hz; low-ESR parts
+#: stated by their 100 kHz ESR come out near 0.01; the model refuses tan
+#: delta of 5 or more (``fleet.models``).  The lower bound is a hundred
+#: times below low-ESR parts.
+TAN_DELTA_PLAUSIBLE_MIN = 1.0e-4
+TAN_DELTA_PLAUSIBLE_MAX = 5.0
+
+#: Largest core rise from ripple current a part could survive [K].  [V,
+#: secondary] a manufacturer's application note: rated ripple current heats
+#: the core by about 3.5-5 K (refs §4); [M] common electrolytes boil at
+#: about 150-200 degC, so a rise of 100 K (twenty times the rated heating)
+#: on top of any room puts the core there: the part would vent at once.
+RIPPLE_RISE_PLAUSIBLE_MAX_K = 100.0
+
 # --- Safety ----------------------------------------------------------------
 
 #: Voltage treated as safe to touch after discharge [V d.c.].  [V] SELV per

@@ -21,6 +21,8 @@ One module per topic, one function per published model:
   ripple and the role-aware damage thresholds;
 - :mod:`.risk`: Weibull scatter, series systems, the shared frailty;
 - :mod:`.safety`: stored energy and discharge time;
+- :mod:`.plausibility`: whether a part's figures could be a real part's
+  (charge per can volume, tan delta implied by its ESR, ripple heating);
 - :mod:`.validation`: the argument checks they share.
 
 Everything public is importable from here: ``from scheduling.physics import
@@ -63,6 +65,13 @@ from .risk import (
     unit_conditional_risk,
     unit_failure_probability,
 )
+from .plausibility import (
+    CHARGE_DENSITY_RANGE_UC_PER_CM3,
+    can_volume_cm3,
+    charge_density_uc_per_cm3,
+    implausible_parts,
+    tan_delta_from_esr,
+)
 from .safety import discharge_time_s, stored_energy_j
 
 __all__ = [
@@ -73,7 +82,8 @@ __all__ = [
     "inverter_ripple_vpp", "charge_share_fraction", "coupling_corner_hz",
     "reservoir_ripple_vpp", "stored_energy_j", "discharge_time_s", "failure_probability",
     "conditional_failure_probability", "unit_failure_probability", "threshold_pump",
-    "threshold_coupling", "threshold_reservoir",
+    "threshold_coupling", "threshold_reservoir", "can_volume_cm3", "charge_density_uc_per_cm3",
+    "tan_delta_from_esr", "implausible_parts", "CHARGE_DENSITY_RANGE_UC_PER_CM3",
 ]
 
 # The docstring examples of the topic modules, for ``doctest.testmod`` on this package.
