@@ -152,16 +152,22 @@ class CheckOutForm(DeskForm):
         if self.unit is not None:
             forecast = selectors.forecast_for(self.unit.pk)
             self.forecast = forecast
-            if (
-                forecast is not None
-                and forecast.status in (UnitForecast.Status.DUE, UnitForecast.Status.OVERDUE)
-                and not cleaned.get("send_anyway")
-            ):
+            if forecast is None or cleaned.get("send_anyway"):
+                return cleaned
+            if forecast.status in (UnitForecast.Status.DUE, UnitForecast.Status.OVERDUE):
                 self.needs_confirmation = True
                 self.add_error(
                     None,
                     f"{self.unit.asset_tag} is {forecast.get_status_display().lower()} for a recap. "
                     "It should stay in for the workshop; tick the box below only if the workshop agrees.",
+                )
+            elif forecast.status == UnitForecast.Status.INVALID:
+                self.needs_confirmation = True
+                self.add_error(
+                    None,
+                    f"{self.unit.asset_tag} cannot be forecast: "
+                    f"{'; '.join(forecast.reasons or []) or 'its figures are not usable'}. Check with the workshop; "
+                    "tick the box below only if the workshop agrees.",
                 )
         return cleaned
 

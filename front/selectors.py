@@ -5,7 +5,7 @@ rows with ``select_related``/``prefetch_related`` so a page costs the same
 number of queries whatever the size of the fleet.
 """
 
-from django.db.models import Count, Prefetch, Q
+from django.db.models import Case, Count, IntegerField, Prefetch, Q, When
 
 from scheduling.models import UnitForecast
 
@@ -13,10 +13,13 @@ from fleet.models import GearModel, Location, Measurement, Rental, ReplacedPart,
 
 RENTAL_HISTORY_LENGTH = 20
 
+#: Forecast states that need the workshop: the recap list.
+ATTENTION = [UnitForecast.Status.INVALID, UnitForecast.Status.OVERDUE, UnitForecast.Status.DUE]
+
 # Forecast filter values for the unit list: a status, "none" (not yet
-# forecast) or "attention" (due or overdue: the recap list).
+# forecast) or "attention" (due, overdue or cannot be forecast: the recap list).
 FORECAST_FILTERS = [
-    ("attention", "Due or overdue"),
+    ("attention", "Due, overdue or cannot forecast"),
     *UnitForecast.Status.choices,
     ("none", "Not yet forecast"),
 ]
@@ -64,7 +67,7 @@ def unit_list(*, q="", status="", gear_model=None, location=None, forecast=""):
     if location:
         qs = qs.filter(home_location=location)
     if forecast == "attention":
-        qs = qs.filter(forecast__status__in=[UnitForecast.Status.DUE, UnitForecast.Status.OVERDUE])
+        qs = qs.filter(forecast__status__in=ATTENTION)
     elif forecast == "none":
         qs = qs.filter(forecast__isnull=True)
     elif forecast:
@@ -140,12 +143,14 @@ def units_in_workshop():
 
 
 def recap_list():
-    """Forecasts that are due or overdue, most urgent first (the recap list)."""
+    """Forecasts that are due or overdue, most urgent first, after the units
+    that cannot be forecast (their figures need a technician first)."""
+    cannot = Case(When(status=UnitForecast.Status.INVALID, then=0), default=1, output_field=IntegerField())
     return (
-        UnitForecast.objects.filter(status__in=[UnitForecast.Status.DUE, UnitForecast.Status.OVERDUE])
+        UnitForecast.objects.filter(status__in=ATTENTION)
         .exclude(unit__status=Unit.Status.RETIRED)
         .select_related("unit", "unit__gear_model", "unit__home_location")
-        .order_by("due_date", "unit__asset_tag")
+        .order_by(cannot, "due_date", "unit__asset_tag")
     )
 
 

@@ -81,7 +81,9 @@ def return_verdict(rental, forecast):
 
     Reported faults hold it for the bench.  Otherwise the forecast decides:
     ok or watch may go out (watch with the date the recap is coming up by),
-    due or overdue hold it for a recap; no forecast yet lets it go out.
+    due or overdue hold it for a recap; no forecast yet lets it go out; a unit
+    whose figures cannot be forecast is for the workshop to judge ("check with
+    the workshop", ``ask``).
     """
     tag = rental.unit.asset_tag
     if rental.reported_faults:
@@ -93,6 +95,13 @@ def return_verdict(rental, forecast):
         }
     if forecast is None:
         return {"go": True, "headline": f"{tag}: may go out again (no forecast yet)", "details": []}
+    if forecast.status == UnitForecast.Status.INVALID:
+        return {
+            "go": False, "ask": True,
+            "headline": f"{tag}: check with the workshop before it goes out again",
+            "details": ["Its forecast cannot be worked out:", *(forecast.reasons or []),
+                        "A technician must correct its figures; until then ask the workshop before hiring it out."],
+        }
     if forecast.status == UnitForecast.Status.OK:
         return {"go": True, "headline": f"{tag}: may go out again", "details": []}
     if forecast.status == UnitForecast.Status.WATCH:

@@ -58,14 +58,19 @@ class UnitForecast(models.Model):
         WATCH = "watch", "Watch"
         DUE = "due", "Due"
         OVERDUE = "overdue", "Overdue"
+        INVALID = "invalid", "Cannot forecast"
 
     unit = models.OneToOneField(Unit, on_delete=models.CASCADE, related_name="forecast")
     computed_at = models.DateTimeField()
     status = models.CharField(max_length=8, choices=Status.choices)
     due_date = models.DateField(null=True, blank=True)
-    risk = models.FloatField(help_text="Probability (0-1) that the unit fails within the horizon.")
+    risk = models.FloatField(null=True, blank=True,
+                             help_text="Probability (0-1) that the unit fails within the horizon; empty when the "
+                                       "unit cannot be forecast.")
     horizon_days = models.PositiveIntegerField()
-    max_damage_ratio = models.FloatField(help_text="Largest damage / threshold over the positions.")
+    max_damage_ratio = models.FloatField(null=True, blank=True,
+                                         help_text="Largest damage / threshold over the positions; empty when the "
+                                                   "unit cannot be forecast.")
     storage_reform = models.BooleanField(default=False)
     act_by = models.DateField(null=True, blank=True,
                               help_text="Do the work by this date; never before the day it was computed.")

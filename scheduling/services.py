@@ -3,11 +3,14 @@
 ``forecast_refresh`` is the one entry point (commands, tasks and the
 workflows in ``front.workflows`` call it).  It reads each table once, computes with
 :mod:`scheduling.forecast` and upserts one ``UnitForecast`` per unit, so running
-it twice leaves the same rows.
+it twice leaves the same rows.  A unit whose figures the engine cannot use
+(:mod:`scheduling.checks`) is stored with the status "cannot forecast" and the
+reason in words, and every other unit is forecast as usual.
 """
 
 import datetime as dt
 import json
+import logging
 import time
 
 import numpy as np
@@ -16,8 +19,9 @@ from django.utils import timezone
 
 from fleet.models import Unit
 
+from .checks import compute_sound
 from .days import day_to_date
-from .forecast import EngineOptions, Policy, compute
+from .forecast import EngineOptions, Policy
 from .loader import active_policy, load_fleet
 from .models import UnitForecast
 from .thermal import thermal_sync
@@ -30,6 +34,7 @@ from .triage import ACTION_NAMES, LEAVE
 #: Each unit's blob starts with this tag; change it with the layout, so a blob
 #: written with another layout reads as empty until the next refresh.
 POSITION_LAYOUT = b"RP03"
+log = logging.getLogger(__name__)
 POSITION_DTYPE = np.dtype([
     ("capacitor_id", "<i8"), ("damage", "<f4"), ("esr_ohm", "<f4"), ("capacitance_f", "<f4"),
     ("threshold", "<f4"), ("reaches_day", "<f4"), ("action", "i1"), ("why", "i1"), ("rate_per_day", "<f4"),
@@ -50,10 +55,15 @@ def _options_from(law=None, activation_energy_ev=None, esr_feedback=False, weibu
 
 
 class ForecastRun:
-    """The arrays and results of one forecast, with ways to read them."""
+    """The arrays and results of one forecast, with ways to read them.
 
-    def __init__(self, fleet, result, policy, today):
+    ``fleet`` and ``result`` hold the units forecast; ``unforecastable`` the
+    units that could not be (``checks.Unforecastable``: id, tag, reasons).
+    """
+
+    def __init__(self, fleet, result, policy, today, unforecastable=()):
         self.fleet, self.result, self.policy, self.today = fleet, result, policy, today
+        self.unforecastable = list(unforecastable)
         self.seconds = {}  # wall time of the stages: load, compute, store
         order = np.argsort(fleet.unit_index, kind="stable")
         self._starts = np.searchsorted(fleet.unit_index[order], np.arange(fleet.n_units), "left")
@@ -117,8 +127,8 @@ def forecast_compute(*, unit_ids=None, today=None, law=None, activation_energy_e
     fleet = load_fleet(unit_ids=unit_ids, today=today, min_history_days=options.min_history_days)
     loaded = time.perf_counter()
     pol = Policy.from_model(policy_row)
-    result = compute(fleet, today=today, policy=pol, options=options)
-    run = ForecastRun(fleet, result, pol, today)
+    sound, result, unforecastable = compute_sound(fleet, today=today, policy=pol, options=options)
+    run = ForecastRun(sound, result, pol, today, unforecastable)
     run.seconds = {"load": loaded - started, "compute": time.perf_counter() - loaded}
     return run
 
@@ -236,15 +246,34 @@ def forecast_refresh(*, unit_ids=None, today=None, **options):
     started = time.perf_counter()
     with transaction.atomic(savepoint=False):
         _store(run)
+        _store_unforecastable(run)
         # Units asked for but not forecast are retired (or gone): drop their old results.
         if unit_ids is None:
             UnitForecast.objects.filter(unit__status=Unit.Status.RETIRED).delete()
         else:
-            missing = set(unit_ids) - set(run.fleet.unit_id.tolist())
+            missing = set(unit_ids) - set(run.fleet.unit_id.tolist()) - {u.unit_id for u in run.unforecastable}
             if missing:
                 UnitForecast.objects.filter(unit_id__in=missing).delete()
     run.seconds["store"] = time.perf_counter() - started  # for the benchmark's breakdown
+    for unit in run.unforecastable:
+        log.warning("Cannot forecast %s: %s", unit.asset_tag, "; ".join(unit.reasons))
+    log.info("Forecast %d units as of %s; %d could not be forecast.", run.fleet.n_units, run.today,
+             len(run.unforecastable))
     return run
+
+
+def _store_unforecastable(run):
+    """Upsert the rows of the units that could not be forecast: the status
+    "cannot forecast", the reasons, and no figures (one statement)."""
+    if not run.unforecastable:
+        return
+    now = timezone.now()
+    rows = [UnitForecast(unit_id=u.unit_id, computed_at=now, status=UnitForecast.Status.INVALID, due_date=None,
+                         risk=None, horizon_days=int(run.policy.horizon_days), max_damage_ratio=None,
+                         storage_reform=False, reasons=list(u.reasons), positions=b"")
+            for u in run.unforecastable]
+    fields = [f.name for f in UnitForecast._meta.concrete_fields if f.name not in ("id", "unit")]
+    UnitForecast.objects.bulk_create(rows, update_conflicts=True, unique_fields=["unit"], update_fields=fields)
 
 
 def stored_positions(forecast):

@@ -20,7 +20,8 @@ def fleet_nightly_refresh():
     storage up to now, then recompute the whole fleet's forecast."""
     synced = thermal_sync(until=timezone.now(), advance_storage=True)
     run = forecast_refresh()
-    return {"changed": synced.changed, "advanced": synced.advanced, "forecast": run.fleet.n_units}
+    return {"changed": synced.changed, "advanced": synced.advanced, "forecast": run.fleet.n_units,
+            "cannot_forecast": len(run.unforecastable)}
 
 
 @shared_task(name="scheduling.unit_forecast_refresh", soft_time_limit=60, time_limit=90, **RETRY)

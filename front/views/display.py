@@ -313,6 +313,11 @@ def desk_card(unit, forecast, rentals, today=None):
         where = "on the bench" if status == "bench" else "held for the workshop"
         return {"go": False, "word": "Do not hire out", "headline": f"{unit.asset_tag} is {where}",
                 "details": details or ["Ask the workshop when it will be ready."]}
+    if forecast is not None and forecast.status == UnitForecast.Status.INVALID:
+        return {"go": False, "word": "Check with the workshop",
+                "headline": "Its forecast cannot be worked out: ask the workshop",
+                "details": [*(forecast.reasons or []),
+                            "Send it out only if the workshop agrees; the check-out asks for it."]}
     if due:
         return {"go": False, "word": "Check with the workshop",
                 "headline": f"Recap {forecast.get_status_display().lower()}: it should stay in",

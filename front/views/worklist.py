@@ -47,6 +47,16 @@ def triage_forecasts(*, gear_model=None, location=None, role=""):
     return qs.order_by("priority", "unit__asset_tag")
 
 
+def unforecastable():
+    """The units the engine cannot forecast (their figures need correcting),
+    at most ``HELD_SHOWN``, with unit and model joined; and how many there are."""
+    qs = (UnitForecast.objects.filter(status=UnitForecast.Status.INVALID)
+          .exclude(unit__status=Unit.Status.RETIRED)
+          .select_related("unit", "unit__gear_model", "unit__home_location")
+          .order_by("unit__asset_tag"))
+    return list(qs[:HELD_SHOWN]), qs.count()
+
+
 def needing_work_count():
     return UnitForecast.objects.filter(priority__isnull=False).exclude(unit__status=Unit.Status.RETIRED).count()
 

@@ -30,6 +30,7 @@ def workshop(request):
     top = rows[:worklist.PARTS_TOP_UNITS] if page_obj.number == 1 else None
     top_forecasts = [r["forecast"] for r in top] if top is not None else \
         list(forecasts[:worklist.PARTS_TOP_UNITS])
+    invalid, invalid_total = worklist.unforecastable()
     held = worklist.workshop_units()
     counts = worklist.workshop_counts()
     query = request.GET.copy()
@@ -40,6 +41,8 @@ def workshop(request):
         "page_obj": page_obj,
         "rows": rows,
         "querystring": query.urlencode(),
+        "invalid": invalid,
+        "invalid_total": invalid_total,
         "held_rows": worklist.workshop_rows(held),
         "held_total": counts[Unit.Status.BENCH] + counts[Unit.Status.HOLD],
         "bench_count": counts[Unit.Status.BENCH],

@@ -38,6 +38,12 @@ class Command(BaseCommand):
         limit = run.today + dt.timedelta(days=days)
         units = {u.pk: u for u in Unit.objects.select_related("gear_model", "home_location")}
         rows = []
+        # Units that cannot be forecast come first: their figures need a technician.
+        for bad in run.unforecastable:
+            unit = units[bad.unit_id]
+            rows.append(["", bad.asset_tag, unit.gear_model.maker, unit.gear_model.model_name,
+                         unit.home_location.name, unit.status, "cannot forecast", "", "", "", "",
+                         " | ".join(bad.reasons)])
         for u in run.urgency_order():
             d = run.unit_dict(u, with_positions=False)
             due_soon = d["due_date"] is not None and dt.date.fromisoformat(d["due_date"]) <= limit
@@ -54,9 +60,17 @@ class Command(BaseCommand):
             writer.writerows([guard_formula(str(cell)) for cell in row] for row in rows)
             return
         for r in rows:
-            self.stdout.write(f"{str(r[0]):>4} {r[1]:<12} {r[6]:<8} act by {r[7] or '-':<10} {r[2]} {r[3]} ({r[4]})")
+            if r[6] == "cannot forecast":
+                self.stdout.write(f"     {r[1]:<12} cannot forecast: check its figures  {r[2]} {r[3]} ({r[4]})")
+            else:
+                self.stdout.write(f"{str(r[0]):>4} {r[1]:<12} {r[6]:<8} act by {r[7] or '-':<10} {r[2]} {r[3]} "
+                                  f"({r[4]})")
             for reason in r[11].split(" | ") if r[11] else []:
                 self.stdout.write(f"       {reason}")
         need = sum(1 for r in rows if r[0] != "")
-        self.stdout.write(f"{need} units need work (priority 1 first); {len(rows) - need} more due by "
-                          f"{limit.isoformat()}.")
+        cannot = len(run.unforecastable)
+        text = (f"{need} units need work (priority 1 first); {len(rows) - need - cannot} more due by "
+                f"{limit.isoformat()}")
+        if cannot:
+            text += f"; {cannot} cannot be forecast (listed first)"
+        self.stdout.write(text + ".")

@@ -34,8 +34,14 @@ class Command(BaseCommand):
             raise CommandError(str(exc)) from None
         order = run.urgency_order()
         if options["json"]:
-            self.stdout.write(json.dumps([run.unit_dict(u) for u in order], indent=2))
+            cannot = [{"asset_tag": u.asset_tag, "status": "invalid", "reasons": u.reasons}
+                      for u in run.unforecastable]
+            self.stdout.write(json.dumps(cannot + [run.unit_dict(u) for u in order], indent=2))
             return
+        for unit in run.unforecastable:
+            self.stdout.write(f"{unit.asset_tag:<12} cannot forecast")
+            for reason in unit.reasons:
+                self.stdout.write(f"    {reason}")
         for u in order:
             d = run.unit_dict(u, with_positions=False)
             self.stdout.write(
@@ -44,4 +50,7 @@ class Command(BaseCommand):
             )
             for reason in d["reasons"]:
                 self.stdout.write(f"    {reason}")
-        self.stdout.write(f"{len(order)} units forecast as of {run.today.isoformat()}.")
+        text = f"{len(order)} units forecast as of {run.today.isoformat()}"
+        if run.unforecastable:
+            text += f"; {len(run.unforecastable)} cannot be forecast (see above)"
+        self.stdout.write(text + ".")
