@@ -85,6 +85,7 @@ MIDDLEWARE = [
     "django.contrib.auth.middleware.AuthenticationMiddleware",
     "django.contrib.messages.middleware.MessageMiddleware",
     "django.middleware.clickjacking.XFrameOptionsMiddleware",
+    "front.middleware.BusyDatabaseMiddleware",
 ]
 
 ROOT_URLCONF = "config.urls"
@@ -127,7 +128,12 @@ if DATABASES["default"]["ENGINE"] == "django.db.backends.sqlite3":
     DATABASES["default"]["OPTIONS"].setdefault(
         "init_command", "PRAGMA journal_mode=WAL; PRAGMA synchronous=NORMAL;"
     )
-    DATABASES["default"]["OPTIONS"].setdefault("timeout", 20)
+    # Several web workers and the background worker write to one file: every
+    # transaction takes the write lock when it begins (BEGIN IMMEDIATE), so a
+    # writer that finds the lock taken waits for it (up to the busy timeout,
+    # in seconds) instead of failing when it upgrades from reading to writing.
+    DATABASES["default"]["OPTIONS"].setdefault("transaction_mode", "IMMEDIATE")
+    DATABASES["default"]["OPTIONS"].setdefault("timeout", env_int("SQLITE_BUSY_TIMEOUT", 20))
     # A file test database, so a worker process in an integration test sees it.
     DATABASES["default"].setdefault("TEST", {})["NAME"] = str(VAR_DIR / f"test-{os.getpid()}.sqlite3")
 

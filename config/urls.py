@@ -6,3 +6,6 @@ urlpatterns = [
     path("accounts/", include("django.contrib.auth.urls")),
     path("", include("front.urls")),
 ]
+
+# A database too busy to take a write answers "try again" (503), not a server error.
+handler500 = "front.views.errors.server_error_or_busy"
