@@ -134,14 +134,19 @@ class _Rollback(Exception):
     pass
 
 
-def import_csv(fileobj_or_path, *, name=None, dry_run=False):
+def import_csv(fileobj_or_path, *, name=None, dry_run=False, user=None, source="upload"):
     """Import one register CSV file (``fleet.csvio.import_csv``), then bring
     the thermal histories it made stale up to date, all in one transaction.
 
     The report counts the histories started and rebuilt.  With ``dry_run``
     everything is checked and counted, then rolled back.  Raises
     ``fleet.csvio.CsvImportError`` with every problem found; nothing is written.
+    Every import that is not a dry run is recorded (``ImportRecord``), a
+    refused one too, after its own transaction.
     """
+    from .models import ImportRecord
+
+    file_name = name or getattr(fileobj_or_path, "name", None) or str(fileobj_or_path)
     try:
         with transaction.atomic():
             report = csvio.import_csv(fileobj_or_path, name=name)
@@ -153,4 +158,13 @@ def import_csv(fileobj_or_path, *, name=None, dry_run=False):
                 raise _Rollback
     except _Rollback:
         pass
+    except csvio.CsvImportError as exc:
+        errors = [str(e) for e in (getattr(exc, "errors", None) or [str(exc)])]
+        ImportRecord.objects.create(user=user, source=source, file_name=str(file_name)[:255], ok=False,
+                                    summary=(errors[0] if errors else "refused")[:500],
+                                    error_count=max(getattr(exc, "total", 0) or 0, len(errors)))
+        raise
+    if not dry_run:
+        ImportRecord.objects.create(user=user, source=source, file_name=str(file_name)[:255], kind=report.kind,
+                                    ok=True, summary=report.summary()[:500])
     return report

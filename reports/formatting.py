@@ -250,7 +250,7 @@ def today_or_date(d, today):
         return "nothing due"
     if d <= today:
         return "now"
-    return date_ahead(d, today)
+    return date_ahead(d, today, none="nothing due")
 
 
 def age_years(installed_on, today):

@@ -79,3 +79,11 @@ def actby(value):
     """An act-by date: ``now`` when already due, ``not within 20 years`` far
     out, else the date."""
     return fmt.today_or_date(value, timezone.localdate()) if value else "nothing due"
+
+
+@register.filter
+def out_for(value):
+    """How long since ``value`` (a moment): ``3 days 4 h``."""
+    if not value:
+        return ""
+    return fmt.duration((timezone.now() - value).total_seconds() / 3600)

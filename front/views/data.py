@@ -58,7 +58,7 @@ def csv_import(request):
             imported, failed, skipped = [], None, []
             for index, f in enumerate(ordered):
                 try:
-                    report = workflows.import_csv(f, name=f.name)
+                    report = workflows.import_csv(f, name=f.name, user=request.user)
                 except csvio.CsvImportError as exc:
                     failed = {"name": f.name, **_import_errors(exc)}
                     skipped = [g.name for g in ordered[index + 1:]]

@@ -42,7 +42,7 @@ class Command(BaseCommand):
         done = []
         for i, path in enumerate(ordered):
             try:
-                report = import_csv(path)
+                report = import_csv(path, source="command")
             except CsvImportError as exc:
                 for line in exc.errors:
                     self.stderr.write(line)
