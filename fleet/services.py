@@ -135,7 +135,8 @@ def rental_close(*, unit_id, in_at=None, venue_ambient_c, powered_hours=None, me
 
     Give either ``powered_hours`` (an estimate) or ``meter_reading_h`` (the
     unit's hour meter now; powered hours are the difference from the last
-    reading).  Powered hours may not exceed the time out; the meter may not run
+    reading).  A unit without an earlier reading may be given both: the
+    estimate counts, and the reading is kept as its first.  Powered hours may not exceed the time out; the meter may not run
     backwards.  A unit with reported faults goes on hold for the bench, any
     other becomes available.  Marks the unit's records changed.
     """
@@ -147,9 +148,15 @@ def rental_close(*, unit_id, in_at=None, venue_ambient_c, powered_hours=None, me
     if in_at <= rental.out_at:
         raise ServiceError("Check-in must come after check-out "
                            f"({timezone.localtime(rental.out_at):%Y-%m-%d %H:%M}).")
-    if meter_reading_h is not None:
-        if unit.hour_meter_h is None:
-            raise ServiceError(f"{unit.asset_tag} has no earlier meter reading; enter powered hours instead.")
+    first_reading = meter_reading_h is not None and unit.hour_meter_h is None
+    if first_reading:
+        # The meter's first reading: it cannot count this hire's hours, the
+        # estimate does; the reading is kept for the next check-in.
+        if powered_hours is None:
+            raise ServiceError(f"{unit.asset_tag} has no earlier meter reading, so the meter cannot tell this hire's "
+                               "hours: give the hours powered as well; the reading is kept as its first.")
+        source = Rental.HoursSource.ESTIMATE
+    elif meter_reading_h is not None:
         if meter_reading_h < unit.hour_meter_h:
             raise ServiceError(
                 f"The hour meter cannot run backwards: last reading {unit.hour_meter_h:g} h, now {meter_reading_h:g} h."

@@ -42,6 +42,16 @@ def open_rental_for(unit):
     return Rental.objects.filter(unit=unit, in_at__isnull=True).first()
 
 
+def last_meter_reading(unit):
+    """The unit's last hour-meter reading and when it was taken (the check-in
+    that read it), or ``None`` when it has none: ``{"hours", "on"}``."""
+    if unit.hour_meter_h is None:
+        return None
+    read = (Rental.objects.filter(unit=unit, meter_reading_h__isnull=False, in_at__isnull=False)
+            .order_by("-in_at").values_list("in_at", flat=True).first())
+    return {"hours": unit.hour_meter_h, "on": read}
+
+
 def forecast_for(unit_id):
     """The unit's stored forecast read fresh from the database, or None."""
     return UnitForecast.objects.filter(unit_id=unit_id).first()

@@ -26,6 +26,7 @@ from fleet import csvio
 from fleet import services as register
 from fleet.models import ServiceRecord, Unit
 from fleet.services import ServiceError  # noqa: F401  (raised through here; callers catch it from either)
+from reports import formatting as fmt
 from scheduling.models import UnitForecast
 from scheduling.services import forecast_refresh
 from scheduling.thermal import thermal_sync
@@ -105,7 +106,7 @@ def return_verdict(rental, forecast):
     if forecast.status == UnitForecast.Status.OK:
         return {"go": True, "headline": f"{tag}: may go out again", "details": []}
     if forecast.status == UnitForecast.Status.WATCH:
-        when = f" by {forecast.due_date:%d %b %Y}" if forecast.due_date else " soon"
+        when = f" by {fmt.date(forecast.due_date)}" if forecast.due_date else " soon"
         return {"go": True, "headline": f"{tag}: may go out again; recap coming up{when}",
                 "details": list(forecast.reasons or [])}
     return {

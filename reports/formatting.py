@@ -100,6 +100,14 @@ def hours(h):
     return f"{plain_number(h)} h"
 
 
+def meter(h):
+    """An hour-meter reading as the meter shows it, to a tenth: ``1,234.5 h``."""
+    if h is None:
+        return ""
+    text = f"{h:,.1f}"
+    return (text[:-2] if text.endswith(".0") else text) + " h"
+
+
 def energy(joules):
     """``12.5 J``, ``0.08 J``, ``0.002 J``."""
     return "" if joules is None else f"{plain_number(joules, 2 if joules < 10 else 3)} J"

@@ -71,3 +71,7 @@ def test_the_risk_says_what_it_assumes():
                                          (300, "12 days"), (24 * 50, "about 7 weeks")])
 def test_how_long_a_unit_was_out(hours, text):
     assert fmt.duration(hours) == text
+
+
+def test_a_meter_reading_keeps_its_tenth():
+    assert fmt.meter(1234.5) == "1,234.5 h" and fmt.meter(4711) == "4,711 h"

@@ -87,3 +87,9 @@ def out_for(value):
     if not value:
         return ""
     return fmt.duration((timezone.now() - value).total_seconds() / 3600)
+
+
+@register.filter
+def meter(value):
+    """An hour-meter reading: ``1,234.5 h``."""
+    return fmt.meter(value)

@@ -9,6 +9,7 @@ from django.views.decorators.http import require_http_methods
 
 from fleet.models import Rental, Unit
 from fleet.services import ServiceError
+from reports import formatting as fmt
 
 from .. import selectors
 from ..forms import CheckInForm, CheckOutForm
@@ -67,7 +68,7 @@ def check_out(request):
                 messages.success(
                     request,
                     f"{rental.unit.asset_tag} checked out on job {rental.job_ref} at "
-                    f"{timezone.localtime(rental.out_at):%d %b %Y %H:%M}.",
+                    f"{fmt.moment(timezone.localtime(rental.out_at))}.",
                 )
                 return redirect("check_out")
     else:
@@ -82,6 +83,7 @@ def check_out(request):
 def check_in(request):
     verdict = None
     open_rental = None
+    unit = None
     if request.method == "POST":
         form = CheckInForm(request.POST)
         if form.is_valid():
@@ -100,6 +102,7 @@ def check_in(request):
                 _service_error(form, exc)
             else:
                 return redirect(f"{reverse('check_in')}?returned={rental.pk}")
+        unit = form.unit
     else:
         initial = {}
         tag = selectors.normalise_tag(request.GET.get("tag", ""))
@@ -108,7 +111,6 @@ def check_in(request):
             unit = selectors.unit_by_tag(tag)
             open_rental = selectors.open_rental_for(unit) if unit else None
             if open_rental is not None:
-                open_rental.unit = unit
                 initial["venue_ambient_c"] = f"{open_rental.expected_ambient_c:g}"
         form = CheckInForm(initial=initial)
         returned = request.GET.get("returned", "")
@@ -117,5 +119,12 @@ def check_in(request):
             if rental is not None:
                 verdict = return_verdict(rental, selectors.forecast_for(rental.unit_id))
                 verdict["rental"] = rental
+    if unit is not None and open_rental is None and request.method == "POST":
+        open_rental = selectors.open_rental_for(unit)
+    if open_rental is not None:
+        open_rental.unit = unit
     form.focus()
-    return page(request, "front/check_in.html", {"form": form, "verdict": verdict, "open_rental": open_rental})
+    return page(request, "front/check_in.html", {
+        "form": form, "verdict": verdict, "open_rental": open_rental,
+        "meter": selectors.last_meter_reading(unit) if open_rental is not None else None,
+    })

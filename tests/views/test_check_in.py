@@ -81,7 +81,7 @@ def test_an_hour_meter_reading_counts_the_hours_since_the_last_reading(client, u
 
 @pytest.mark.parametrize("status, due, reasons, go, headline", [
     ("ok", None, [], True, "NMB-0001: may go out again"),
-    ("watch", dt.date(2031, 3, 9), ["C1 ageing"], True, "NMB-0001: may go out again; recap coming up by 09 Mar 2031"),
+    ("watch", dt.date(2031, 3, 9), ["C1 ageing"], True, "NMB-0001: may go out again; recap coming up by 9 Mar 2031"),
     ("due", dt.date(2030, 1, 1), ["C1 has used its endurance"], False, "NMB-0001: hold for recap"),
     ("overdue", None, ["C7 past its calendar age"], False, "NMB-0001: hold for recap"),
 ])
@@ -132,7 +132,7 @@ def test_bad_input_shows_an_error_and_writes_nothing(client, users, out_unit, da
 
 @pytest.mark.parametrize("data, message", [
     ({"powered_hours": "60"}, "more than the"),  # longer than the two days out
-    ({"powered_hours": "", "meter_reading_h": "100"}, "has no earlier meter reading"),
+    ({"powered_hours": "", "meter_reading_h": "100"}, "give the hours powered as well"),
 ])
 def test_the_services_refusals_show_as_form_errors(client, users, out_unit, data, message):
     client.force_login(users.desk)
@@ -155,3 +155,28 @@ def test_a_tag_from_the_start_page_fills_in_the_expected_ambient(client, users, 
     assert form.initial == {"asset_tag": "NMB-0001", "venue_ambient_c": "26"}
     assert form.fields["powered_hours"].widget.attrs.get("autofocus") or \
         form.fields["venue_ambient_c"].widget.attrs.get("autofocus")
+
+
+def test_the_desk_sees_how_long_the_unit_was_out_and_its_last_meter_reading(client, users, out_unit):
+    Unit.objects.filter(pk=out_unit.pk).update(hour_meter_h=1234.5)
+    client.force_login(users.desk)
+    response = client.get(URL, {"tag": "NMB-0001"})
+    text = response.content.decode()
+    assert "2 days" in text and "so far" in text
+    assert "last read <strong>1,234.5 h</strong>" in text
+    assert response.context["meter"]["hours"] == 1234.5
+
+
+def test_a_unit_without_a_meter_reading_takes_its_first_with_the_hours(client, users, out_unit):
+    client.force_login(users.desk)
+    page = client.get(URL, {"tag": "NMB-0001"}).content.decode()
+    assert "no reading yet" in page
+    response = post(client, powered_hours="9", meter_reading_h="4711")
+    assert response.status_code == 302
+    rental = Rental.objects.get()
+    assert rental.powered_hours == 9 and rental.hours_source == Rental.HoursSource.ESTIMATE
+    assert rental.meter_reading_h == 4711
+    out_unit.refresh_from_db()
+    assert out_unit.hour_meter_h == 4711
+    verdict_page = client.get(response["Location"]).content.decode()
+    assert "meter 4,711 h" in verdict_page and "after 2 days" in verdict_page

@@ -32,7 +32,7 @@ def test_the_list_shows_every_unit_with_its_status_and_forecast(client, users, m
     assert tags(response) == ["NMB-0001", "NMB-0002", "TRN-0001"]
     text = response.content.decode()
     assert "not yet forecast" in text
-    assert "Watch" in text and "01 Apr 2031" in text
+    assert "Watch" in text and "1 Apr 2031" in text
     assert "Held" in text
 
 
