@@ -405,7 +405,7 @@ class UnitCapacitor(CapacitorRatings):
         ]
 
     def __str__(self):
-        return f"{self.unit_id}:{self.position_id}"
+        return f"{self.unit.asset_tag} {self.position.designator}"
 
 
 class Rental(models.Model):
@@ -443,10 +443,10 @@ class Rental(models.Model):
                 name="rental_closed_has_hours",
             ),
         ]
-        indexes = [models.Index(fields=["unit", "out_at"])]
+        indexes = [models.Index(fields=["unit", "out_at"]), models.Index(fields=["-out_at"], name="rental_newest")]
 
     def __str__(self):
-        return f"{self.unit_id} {self.job_ref}"
+        return f"{self.unit.asset_tag} {self.job_ref}"
 
     @property
     def is_open(self):
@@ -510,7 +510,7 @@ class ServiceRecord(models.Model):
         ordering = ["-performed_on", "-id"]
 
     def __str__(self):
-        return f"{self.unit_id} {self.get_kind_display()} {self.performed_on}"
+        return f"{self.unit.asset_tag} {self.get_kind_display().lower()} {self.performed_on:%Y-%m-%d}"
 
 
 class ReplacedPart(CapacitorRatings):

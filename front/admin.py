@@ -42,6 +42,14 @@ RATING_COLUMNS = (
 )
 
 
+def _count(model, field):
+    """A correlated count of ``model`` rows whose ``field`` is the outer row."""
+    from django.db.models import Count, IntegerField, OuterRef, Subquery
+
+    rows = model.objects.filter(**{field: OuterRef("pk")}).order_by().values(field)
+    return Subquery(rows.annotate(n=Count("pk")).values("n"), output_field=IntegerField())
+
+
 # --- locations -------------------------------------------------------------------
 
 class TemperatureSampleInline(admin.TabularInline):
@@ -61,13 +69,11 @@ class LocationAdmin(admin.ModelAdmin):
     inlines = [TemperatureSampleInline]
 
     def get_queryset(self, request):
-        from django.db.models import Count
-
-        return super().get_queryset(request).annotate(_units=Count("units", distinct=True))
+        return super().get_queryset(request).annotate(_units=_count(Unit, "home_location"))
 
     @admin.display(description="units", ordering="_units")
     def unit_count(self, obj):
-        return obj._units
+        return obj._units or 0
 
     @admin.display(description="temperature samples")
     def sample_summary(self, obj):
@@ -116,11 +122,10 @@ class GearModelAdmin(admin.ModelAdmin):
     inlines = [PositionInline]
 
     def get_queryset(self, request):
-        from django.db.models import Count
-
-        return super().get_queryset(request).annotate(
-            _positions=Count("positions", distinct=True), _units=Count("units", distinct=True)
-        )
+        # Two correlated counts, each by its own index, rather than one
+        # join of positions x units grouped back (310 ms at 10,000 units).
+        return super().get_queryset(request).annotate(_positions=_count(Position, "gear_model"),
+                                                      _units=_count(Unit, "gear_model"))
 
     def save_model(self, request, obj, form, change):
         super().save_model(request, obj, form, change)
@@ -129,11 +134,11 @@ class GearModelAdmin(admin.ModelAdmin):
 
     @admin.display(description="positions", ordering="_positions")
     def position_count(self, obj):
-        return obj._positions
+        return obj._positions or 0
 
     @admin.display(description="units", ordering="_units")
     def unit_count(self, obj):
-        return obj._units
+        return obj._units or 0
 
     @admin.display(description="hazards")
     def hazard_list(self, obj):
@@ -240,7 +245,10 @@ class RentalAdmin(admin.ModelAdmin):
     list_filter = ("hours_source", ("in_at", admin.EmptyFieldListFilter), "unit__gear_model",
                    "unit__home_location")
     search_fields = ("unit__asset_tag", "job_ref")
-    date_hierarchy = "out_at"
+    # No date hierarchy: over hundreds of thousands of hires its year list
+    # alone took seconds.  Newest first, by the index on out_at.
+    ordering = ("-out_at",)
+    show_full_result_count = False
     list_select_related = ("unit",)
 
     @admin.display(boolean=True, description="faults")
@@ -301,7 +309,8 @@ class ServiceRecordAdmin(admin.ModelAdmin):
     search_fields = ("unit__asset_tag", "technician_name", "notes")
     date_hierarchy = "performed_on"
     list_select_related = ("unit", "technician", "signed_off_by")
-    raw_id_fields = ("unit",)
+    autocomplete_fields = ("unit",)  # shows the unit's asset tag, not its database number
+    show_full_result_count = False
     inlines = [ReplacedPartInline, MeasurementInline]
 
     @admin.display(description="technician")

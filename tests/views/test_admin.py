@@ -79,3 +79,74 @@ def test_hires_are_read_only_in_the_admin(client, fleet):
     response = client.get(reverse("admin:fleet_rental_change", args=[rental.pk]))
     assert response.status_code == 200
     assert 'name="job_ref"' not in response.content.decode()
+
+
+def test_a_service_record_names_its_unit_by_tag(client, fleet):
+    import datetime as dt
+
+    from front.workflows import service_record_recap
+
+    record = service_record_recap(unit_id=fleet.unit.pk, performed_on=dt.date(2024, 3, 1),
+                                  replacements={"C7": {"rated_life_h": 4000}}, technician_name="Ada Bench")
+    client.force_login(make_user("superuser", username="root"))
+    text = client.get(reverse("admin:fleet_servicerecord_change", args=[record.pk])).content.decode()
+    assert str(record) == "NMB-0001 recap 2024-03-01"
+    assert "NMB-0001 recap 2024-03-01" in text
+    # the unit field shows the tag (autocomplete), not a box holding its database number
+    assert f'<option value="{fleet.unit.pk}" selected>NMB-0001</option>' in text
+    assert 'name="unit" value=' not in text
+    listing = client.get(reverse("admin:fleet_servicerecord_changelist")).content.decode()
+    assert "NMB-0001" in listing
+
+
+def test_the_gear_model_list_counts_positions_and_units(client, fleet):
+    from tests.base import make_unit
+
+    make_unit(fleet.gear_model, fleet.location, asset_tag="NMB-0002")
+    client.force_login(make_user("superuser", username="root"))
+    response = client.get(reverse("admin:fleet_gearmodel_changelist"))
+    row = response.context["cl"].result_list[0]
+    assert (row._positions, row._units) == (3, 2)
+
+
+def test_the_busy_admin_lists_cost_the_same_queries_whatever_the_fleet(client, fleet):
+    import datetime as dt
+
+    from django.db import connection
+    from django.test.utils import CaptureQueriesContext
+    from django.utils import timezone
+
+    from front.workflows import rental_check_in, rental_check_out
+    from tests.base import make_unit
+
+    client.force_login(make_user("superuser", username="root"))
+
+    def counts():
+        out = []
+        for name in ("rental", "gearmodel", "unit", "servicerecord", "location"):
+            with CaptureQueriesContext(connection) as ctx:
+                assert client.get(reverse(f"admin:fleet_{name}_changelist")).status_code == 200
+            out.append(len(ctx.captured_queries))
+        return out
+
+    def hire(unit, days_ago):
+        rental_check_out(unit_id=unit.pk, job_ref="J", out_at=timezone.now() - dt.timedelta(days=days_ago))
+        rental_check_in(unit_id=unit.pk, in_at=timezone.now() - dt.timedelta(days=days_ago - 1), venue_ambient_c=25,
+                        powered_hours=3)
+
+    hire(fleet.unit, 30)
+    small = counts()
+    for i in range(5):
+        unit = make_unit(fleet.gear_model, fleet.location, asset_tag=f"NMB-5{i:03d}")
+        hire(unit, 20 + i)
+    assert counts() == small
+
+
+def test_the_admin_wears_the_apps_look(client, fleet):
+    client.force_login(make_user("superuser", username="root"))
+    text = client.get(reverse("admin:index")).content.decode()
+    assert "Recap Scheduler" in text and "front/admin.css" in text
+    assert reverse("home") in text
+    hires = client.get(reverse("admin:fleet_rental_changelist"))
+    # no year list over every hire: that alone took seconds at 10,000 units
+    assert hires.context["cl"].date_hierarchy is None
