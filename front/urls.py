@@ -6,10 +6,13 @@ urlpatterns = [
     path("", views.home, name="home"),
     path("units/", views.unit_list, name="unit_list"),
     path("units/<str:asset_tag>/", views.unit_detail, name="unit_detail"),
+    path("units/<str:asset_tag>/service-sheet.pdf", views.unit_sheet, name="unit_sheet"),
     path("desk/scan/", views.desk_scan, name="desk_scan"),
     path("desk/check-out/", views.check_out, name="check_out"),
     path("desk/check-in/", views.check_in, name="check_in"),
     path("workshop/", views.workshop, name="workshop"),
+    path("workshop/due-list.pdf", views.due_list, name="due_list_pdf"),
+    path("workshop/parts-list.<str:fmt>", views.parts_list, name="parts_list"),
     path("data/import/", views.csv_import, name="csv_import"),
     path("data/export/<slug:kind>.csv", views.csv_export, name="csv_export"),
 ]

@@ -23,6 +23,7 @@ from __future__ import annotations
 
 import datetime as dt
 import math
+import re
 
 from fleet import values
 
@@ -268,3 +269,41 @@ def age_years(installed_on, today):
 
 def first_of_next_month(d):
     return (d.replace(day=1) + dt.timedelta(days=32)).replace(day=1)
+
+
+# --- printed output ------------------------------------------------------------------
+
+
+def frequency(hz):
+    """``120 Hz``, ``5 kHz``."""
+    if hz is None:
+        return ""
+    if abs(hz) >= 1e3:
+        return f"{plain_number(hz / 1e3)} kHz"
+    return f"{plain_number(hz)} Hz"
+
+
+def millimetres(mm):
+    return "" if mm is None else f"{plain_number(mm)} mm"
+
+
+def can_size(diameter_mm, length_mm):
+    """A can as the trade writes it, diameter by length: ``10 × 20 mm``."""
+    if diameter_mm is None:
+        return ""
+    if length_mm is None:
+        return f"{plain_number(diameter_mm)} mm dia."
+    return f"{plain_number(diameter_mm)} \u00d7 {plain_number(length_mm)} mm"
+
+
+def designator_key(designator):
+    """Sort key for reference designators: C2 before C10, then any suffix."""
+    match = re.match(r"([A-Za-z]*)(\d*)(.*)", designator)
+    prefix, number, rest = match.groups()
+    return (prefix.upper(), int(number) if number else -1, rest)
+
+
+def decimal_year(d):
+    """A date as a year and its fraction, for chart axes: 2 Jul 2026 -> 2026.5."""
+    start = dt.date(d.year, 1, 1)
+    return d.year + (d - start).days / (dt.date(d.year + 1, 1, 1) - start).days

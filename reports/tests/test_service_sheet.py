@@ -1,0 +1,217 @@
+"""The service sheet: what it prints is what the register and the stored
+forecast hold, the safety figures reproduce the worked values of
+references.md §7, the pump check follows the data sheet's model (§6), the
+font carries µ, Ω and °, and 120 positions stay readable."""
+
+import math
+import re
+
+import pytest
+from reportlab.pdfbase.pdfmetrics import getFont
+
+from fleet.models import UnitCapacitor
+from reports import formatting as fmt
+from reports.pdf.base import FONT, NEEDED_GLYPHS, register_fonts
+from reports.services import sheet_pdf
+from reports.sheets import unit_sheet
+from scheduling.models import UnitForecast
+from scheduling.services import stored_positions
+from scheduling.triage import ACTION_NAMES
+
+from .factories import N_POSITIONS, TODAY, make_bench_model, make_bench_unit
+from .pdftext import drawn_text, page_texts, reader, rows_by_first_cell
+
+
+@pytest.fixture
+def sheet_and_pdf(bench_unit):
+    return sheet_pdf(asset_tag="FT-0120", today=TODAY)
+
+
+def test_every_page_carries_the_header_with_page_n_of_m(sheet_and_pdf):
+    _, data = sheet_and_pdf
+    texts = page_texts(data)
+    m = len(texts)
+    assert m >= 2
+    for n, text in enumerate(texts, start=1):
+        assert "FT-0120 · Fennick Audio Works Tallow 120 · serial FA-85-0042 · Loft store" in text
+        assert f"Service sheet · printed 1 Jun 2026 · page {n} of {m}" in text
+
+
+def test_each_row_prints_the_register_and_the_stored_forecast(sheet_and_pdf, bench_unit):
+    _, data = sheet_and_pdf
+    lines = "\n".join(page_texts(data)).splitlines()
+    caps = {c.position.designator: c for c in UnitCapacitor.objects.filter(unit=bench_unit.unit)
+            .select_related("position")}
+    assert len(caps) == N_POSITIONS
+    rows = rows_by_first_cell(lines, caps)
+    assert set(rows) == set(caps), "every position has its row"
+    stored = {int(r["capacitor_id"]): r for r in stored_positions(UnitForecast.objects.get(unit=bench_unit.unit))}
+    counts = {"replace": 0, "measure": 0, "leave": 0}
+    for des, c in caps.items():
+        row = " ".join(rows[des])
+        rec = stored[c.pk]
+        action = ACTION_NAMES[int(rec["action"])]
+        counts[action] += 1
+        assert fmt.capacitance(c.capacitance_uf) in row, des
+        assert f"{c.rated_voltage_v:g} V" in row, des
+        assert f"{c.rated_temp_c:g} °C" in row, des
+        assert (action.upper() if action == "replace" else action) in rows[des], des
+        if float(rec["damage"]) <= 2.0:
+            assert fmt.resistance(float(rec["esr_ohm"])) in row, des
+        assert ("SMD" if c.mount == "smd" else c.mount) in rows[des], des
+    text = "\n".join(lines)
+    assert f"replace {counts['replace']} · measure {counts['measure']} · leave {counts['leave']} (of 120)" in text
+
+
+def test_the_replacement_follows_common_practice(sheet_and_pdf):
+    sheet, data = sheet_and_pdf
+    c1 = next(r for r in sheet.rows if r.designator == "C1")
+    # 350 V working x 1.25 = 437.5 V, above the original 400 V: the next usual rating up is 450 V;
+    # 105 degC; no wider can.
+    assert (c1.replacement.rated_voltage_v, c1.replacement.rated_temp_c, c1.replacement.max_diameter_mm) == \
+        (450.0, 105.0, 30.0)
+    assert c1.replacement.rated_life_h >= 2000
+    text = "\n".join(page_texts(data))
+    assert "100 µF 450 V 105 °C" in text and "≤ 30 mm dia." in text
+    pump = next(r for r in sheet.rows if r.designator == "C3")
+    assert pump.replacement.low_esr and "low ESR" in text
+
+
+def test_the_safety_box_reproduces_the_worked_values(sheet_and_pdf):
+    """references.md §7 [C]: 100 uF at 400 V holds 8.0 J and falls to 60 V
+    through 10 kohm after 1.897 s (parts taken charged to their rating)."""
+    sheet, data = sheet_and_pdf
+    box = sheet.safety
+    assert box.largest.designator == "C1" and box.largest.voltage_v == 400.0
+    assert box.largest.energy_j == pytest.approx(8.0, rel=1e-12)
+    assert box.resistor_ohm == 10e3
+    assert box.slowest.designator == "C1"
+    assert box.slowest.discharge_s == pytest.approx(1.897, abs=5e-4)
+    assert box.above_safe == ["C1", "C2"]
+    first = page_texts(data)[0]
+    flat = " ".join(first.split())
+    assert "SAFETY FIRST" in first
+    assert "C1, 100 µF at 400 V (its rated voltage, the most it may hold): E = ½CV² = 8 J" in flat
+    assert "through a 10 kΩ resistor, C1 falls below 60 V in 1.9 s" in flat
+
+
+def test_the_second_worked_value_through_a_stated_resistor(db):
+    """references.md §7 [C]: 220 uF at 350 V through 2 kohm reaches 60 V after
+    0.776 s, with 61 W at the start (a pulse-rated resistor)."""
+    gm = make_bench_model(maker="Fennick Audio Works", model_name="Tallow 220")
+    from fleet.models import Position
+
+    Position.objects.filter(gear_model=gm, designator="C1").update(capacitance_uf=220, rated_voltage_v=350,
+                                                                   operating_voltage_v=300)
+    Position.objects.filter(gear_model=gm, designator="C2").update(rated_voltage_v=250, operating_voltage_v=200)
+    make_bench_unit(gm, tag="FT-0220")
+    sheet = unit_sheet(asset_tag="FT-0220", today=TODAY, resistor_ohm=2000.0)
+    assert sheet.safety.slowest.designator == "C1"
+    assert sheet.safety.slowest.discharge_s == pytest.approx(0.776, abs=5e-4)
+    assert sheet.safety.peak_power_w == pytest.approx(61.0, abs=0.5)
+
+
+def test_the_cautions_cover_the_unit_and_defer_to_codes(sheet_and_pdf):
+    sheet, data = sheet_and_pdf
+    headings = [h for h, _ in sheet.safety.cautions]
+    for expected in ("Isolate", "Discharge", "Verify", "High voltage", "This model", "Polarity and rating",
+                     "Bring up slowly", "Surface mount", "ESD", "Not a substitute"):
+        assert expected in headings
+    flat = " ".join(page_texts(data)[0].split())
+    assert "B+ about 380 V: the filter cans hold a lethal charge after unplugging." in flat
+    assert "does not replace local electrical codes, the maker's service information or licensed practice" in flat
+
+
+def test_the_pump_check_comes_in_order_with_the_model_values(sheet_and_pdf, bench_unit):
+    """references.md §6, the data sheet's instance: 46 ohm switches, 10 uF at a
+    5 kHz pump (20 ohm), ESRs 0.1 ohm: Rout = 46 + 20 + 4(0.1) + 0.1 = 66.5
+    ohm, so 5 V in at 10 mA gives -(5 - 0.665) = -4.335 V with new parts."""
+    sheet, data = sheet_and_pdf
+    (pc,) = sheet.pumps
+    assert (pc.flying.designator, pc.reservoir.designator) == ("C3", "C4")
+    assert pc.rail_new_v == pytest.approx(-4.335, abs=1e-9)
+    # today's rail from the stored predicted ESR and capacitance, by the data sheet's formula written out
+    stored = {int(r["capacitor_id"]): r for r in stored_positions(UnitForecast.objects.get(unit=bench_unit.unit))}
+    caps = {c.position.designator: c.pk for c in UnitCapacitor.objects.filter(unit=bench_unit.unit)
+            .select_related("position")}
+    fly, res = stored[caps["C3"]], stored[caps["C4"]]
+    rout = 46.0 + 1.0 / (5000.0 * float(fly["capacitance_f"])) + 4 * float(fly["esr_ohm"]) + float(res["esr_ohm"])
+    assert pc.rail_today_v == pytest.approx(-(5.0 - 0.01 * rout), rel=1e-5)
+    assert pc.pump_hz == 5000.0 and pc.oscillator_hz == 10000.0
+    flat = " ".join(" ".join(page_texts(data)).split())
+    first, second, third = (flat.index(s) for s in ("1. Negative rail", "2. Input rail", "3. Switching waveform"))
+    assert first < second < third
+    assert f"about {fmt.volts(pc.rail_new_v)} with new parts; the model predicts {fmt.volts(pc.rail_today_v)} today" \
+        in flat
+    assert "square wave of about 5 V peak-to-peak at 5 kHz (oscillator 10 kHz)" in flat
+
+
+def test_a_unit_without_a_pump_has_no_bench_check(db):
+    gm = make_bench_model(model_name="Tallow 121")
+    from fleet.models import Position, Role
+
+    Position.objects.filter(gear_model=gm, designator__in=["C3", "C4"]).update(role=Role.GENERAL, pump_partner="")
+    make_bench_unit(gm, tag="FT-0121")
+    sheet, data = sheet_pdf(asset_tag="FT-0121", today=TODAY)
+    assert sheet.pumps == []
+    assert "Bench check" not in " ".join(page_texts(data))
+
+
+def test_the_embedded_font_holds_every_character_printed(sheet_and_pdf):
+    _, data = sheet_and_pdf
+    register_fonts()
+    cmap = getFont(FONT).face.charToGlyph
+    assert all(ord(ch) in cmap for ch in NEEDED_GLYPHS), "µ Ω ° × ≤ and the rest"
+    text = "".join(page_texts(data))
+    for symbol in ("µF", "Ω", "°C"):
+        assert symbol in text
+    missing = sorted({ch for ch in text if ord(ch) > 127 and ord(ch) not in cmap})
+    assert not missing, f"printed without a glyph: {missing}"
+    fonts = {font for _, _, font, _ in drawn_text(data)}
+    assert fonts and all("BitstreamVeraSans" in f for f in fonts), fonts
+    # embedded, not referenced
+    page = reader(data).pages[0]
+    truetype = [f.get_object() for f in page["/Resources"]["/Font"].values()
+                if f.get_object()["/Subtype"] == "/TrueType"]
+    assert truetype and all("/FontFile2" in f["/FontDescriptor"].get_object() for f in truetype)
+
+
+def test_120_positions_stay_readable(sheet_and_pdf):
+    """Every position on the sheet, table text at 7 pt or more, the header
+    row repeated on every page the table runs over."""
+    _, data = sheet_and_pdf
+    pieces = drawn_text(data)
+    designators = {f"C{k}" for k in range(1, N_POSITIONS + 1)}
+    sizes = [size for _, text, _, size in pieces if text.strip() in designators]
+    assert len(sizes) >= N_POSITIONS
+    assert min(sizes) >= 7.0
+    assert min(size for *_, size in pieces) >= 6.0
+    table_pages = {n for n, text, _, _ in pieces if text.strip() in designators}
+    header_pages = {n for n, text, _, _ in pieces if text.strip() == "Ref"}
+    assert table_pages <= header_pages
+    rows_per_page = N_POSITIONS / len(table_pages)
+    assert rows_per_page >= 12, "no page spends its height on a handful of rows"
+
+
+def test_the_sheet_reads_the_exposure_and_the_forecast(sheet_and_pdf, bench_unit):
+    sheet, data = sheet_and_pdf
+    fc = UnitForecast.objects.get(unit=bench_unit.unit)
+    flat = " ".join(page_texts(data)[0].split())
+    assert f"act by {fmt.today_or_date(fc.act_by, TODAY)}" in flat
+    assert f"within 90 days {fmt.percent(fc.risk)}" in flat
+    for reason in fc.reasons[:2]:
+        assert " ".join(reason.split()) in flat
+    assert "Loft store, monthly means 6 °C–27 °C, warmest in July" in flat
+    assert re.search(r"Powered hours: [\d,]+ h counted; 0 h of them on 0 hires", flat)
+    assert sheet.exposure.powered_total_h > 0
+
+
+def test_the_damage_chart_draws_the_worst_positions(sheet_and_pdf):
+    sheet, _ = sheet_and_pdf
+    assert 1 <= len(sheet.chart) <= 5
+    worst = max(r.damage / (r.threshold * r.damage_limit) for r in sheet.rows if r.threshold and r.threshold > 0)
+    today_year = sheet.chart_today_year
+    first = sheet.chart[0]
+    at_today = first.life_used[min(range(len(first.years)), key=lambda i: abs(first.years[i] - today_year))]
+    assert at_today == pytest.approx(worst, rel=1e-3)
+    assert all(v >= 0 and math.isfinite(v) for s in sheet.chart for v in s.life_used)
