@@ -187,10 +187,13 @@ def _equivalent_temp_c(life_h, L0, T0, opts):
     return 1.0 / inv_t - P.ZERO_CELSIUS_K
 
 
-def _with_feedback(fa, powered_damage, powered_hours, ripple_a, opts):
+def _with_feedback(fa, powered_damage, powered_hours, ripple_a, opts, unpowered_damage):
     """Powered damage with ESR feedback: the same hours at the equivalent
     constant ambient (the one giving ``powered_damage`` without feedback),
-    integrated with the ripple rise growing as ESR drifts."""
+    integrated with the ripple rise growing as ESR drifts.  The unpowered
+    damage is spread evenly over the powered hours (shelf ageing raises the
+    ESR that heats the part too); returned is the total less that unpowered
+    damage, so that powered + unpowered stays the part's damage."""
     out = powered_damage.copy()
     use = (powered_hours > 0) & (powered_damage > 0) & (ripple_a > 0)
     if not np.any(use):
@@ -202,7 +205,8 @@ def _with_feedback(fa, powered_damage, powered_hours, ripple_a, opts):
         powered_hours[use], core_eq - rise0, fa.rated_life_h[use], fa.rated_temp_c[use], ripple_a[use],
         fa.esr0_ohm[use], fa.diameter_mm[use], fa.length_mm[use], law=opts.law,
         activation_energy_ev=opts.activation_energy_ev,
-    )
+        extra_rate_per_h=unpowered_damage[use] / powered_hours[use],
+    ) - unpowered_damage[use]
     return out
 
 
@@ -297,7 +301,7 @@ def compute(fa, *, today, policy=None, options=None):
         if fa.snap_powered.size:
             base = fa.baseline_index
             hours_p = hours_p - np.where(base >= 0, fa.snap_powered.sum(axis=1)[np.maximum(base, 0)], 0.0)
-        d_pow = _with_feedback(fa, d_pow, np.maximum(hours_p, 0.0), ripple_a, opts)
+        d_pow = _with_feedback(fa, d_pow, np.maximum(hours_p, 0.0), ripple_a, opts, d_unp)
     d_hist = d_pow + d_unp
 
     # 3. rate of damage per day at the projected use
@@ -321,7 +325,7 @@ def compute(fa, *, today, policy=None, options=None):
     damage = d_hist + rate * since
 
     # 4. role thresholds
-    threshold = _thresholds(fa, damage, rate)
+    threshold = _thresholds(fa, damage, rate, today_day)
 
     # per-capacitor state and crossing dates
     esr = physics.esr_at_damage(fa.esr0_ohm, damage)

@@ -31,8 +31,9 @@ def _circuit(fa, name, rows):
     return fa.pos_circuit[name][fa.position_index[rows]]
 
 
-def _thresholds(fa, damage, rate):
-    """Role-aware damage threshold D* per capacitor (step 4)."""
+def _thresholds(fa, damage, rate, today_day):
+    """Role-aware damage threshold D* per capacitor (step 4); ``today_day``
+    (days since 1970) dates the damage, for a pump pair that failed before it."""
     nc = fa.n_caps
     threshold = np.full(nc, P.GENERAL_DAMAGE_THRESHOLD)
     role = fa.pos_role[fa.position_index]
@@ -57,18 +58,22 @@ def _thresholds(fa, damage, rate):
             threshold[k] = physics.threshold_reservoir(load[ok], f[ok], fa.capacitance_f[k], fa.esr0_ohm[k], lim[ok])
 
     # Charge pump: the negative rail must stay beyond its minimum magnitude.
-    _pump_thresholds(fa, damage, rate, threshold, role)
+    _pump_thresholds(fa, damage, rate, threshold, role, today_day)
     return np.clip(threshold, 0.0, DAMAGE_THRESHOLD_CAP)
 
 
-def _pump_thresholds(fa, damage, rate, threshold, role):
+def _pump_thresholds(fa, damage, rate, threshold, role, today_day):
     """Thresholds of the two capacitors of each switched-capacitor inverter.
 
     Both capacitors age at once, so the rail fails at one moment for the pair:
     find the time t (days from today) at which ``physics.inverter_output_v``
-    with both parts drifted (damage + rate * t) reaches the minimum rail
-    magnitude, by vectorised bisection; each part's threshold is its damage at
-    that moment.  A pair whose rail fails even with new parts gets 0.
+    with both parts drifted reaches the minimum rail magnitude; each part's
+    threshold is its damage at that moment.  Ahead of today each part drifts at
+    its projected rate (damage + rate * t); before today each is taken to have
+    aged evenly since it went in (damage * (age + t) / age), the assumption
+    every other date already passed uses, so a pair whose rail failed in the
+    past gets one failure date for both parts.  A pair whose rail fails even
+    with the younger part new gets 0.
     """
     pump = np.flatnonzero((role == ROLE_CODES["pump_flying"]) | (role == ROLE_CODES["pump_reservoir"]))
     if not pump.size:
@@ -92,22 +97,27 @@ def _pump_thresholds(fa, damage, rate, threshold, role):
     if not fly.size:
         return
     rsw = np.nan_to_num(rsw)
+    age_fly = np.maximum(today_day - fa.installed_day[fly], 0.0)   # days since each part went in
+    age_res = np.maximum(today_day - fa.installed_day[res], 0.0)
+
+    def drifted(rows, ages, units, t):
+        """Damage of ``rows`` (one per pair in ``units``) at t days from today."""
+        d, r, a = damage[rows[units]], rate[rows[units]], ages[units]
+        with np.errstate(divide="ignore", invalid="ignore"):
+            back = np.where(a > 0, d * np.maximum(a + t, 0.0) / a, 0.0)
+        return np.maximum(np.where(t < 0, back, d + r * t), 0.0)
 
     def margin_of(units, t):
         a, b = fly[units], res[units]
-        d_f = np.maximum(damage[a] + rate[a] * t, 0.0)
-        d_r = np.maximum(damage[b] + rate[b] * t, 0.0)
+        d_f, d_r = drifted(fly, age_fly, units, t), drifted(res, age_res, units, t)
         v = physics.inverter_output_v(
             vin[units], load[units], f[units], physics.capacitance_at_damage(fa.capacitance_f[a], d_f),
             physics.capacitance_at_damage(fa.capacitance_f[b], d_r),
             physics.esr_at_damage(fa.esr0_ohm[a], d_f), physics.esr_at_damage(fa.esr0_ohm[b], d_r), rsw[units])
         return -v - vmin[units]  # >= 0 while the rail is deep enough
 
-    with np.errstate(divide="ignore", invalid="ignore"):
-        back = np.minimum(np.where(rate[fly] > 0, damage[fly] / rate[fly], 0.0),
-                          np.where(rate[res] > 0, damage[res] / rate[res], 0.0))
     every = np.arange(fly.size)
-    lo = -back                                   # the younger part is new here
+    lo = -np.minimum(age_fly, age_res)           # the younger part is new here
     hi = np.full(fly.size, SEARCH_FUTURE_DAYS)
     m_lo, m_hi = margin_of(every, lo), margin_of(every, hi)
     fails_new = m_lo < 0
@@ -118,7 +128,7 @@ def _pump_thresholds(fa, damage, rate, threshold, role):
         hi[solve] = _first_crossing(
             lambda units, t: -margin_of(solve[units], t), lo[solve], hi[solve], -m_lo[solve], -m_hi[solve], 0.0,
             tol_days=PUMP_TOLERANCE_DAYS)
-    t_fail = np.where(fails_new, -back, hi)
-    for rows in (fly, res):
-        at_fail = np.maximum(damage[rows] + rate[rows] * t_fail, 0.0)
+    t_fail = np.where(fails_new, lo, hi)
+    for rows, ages in ((fly, age_fly), (res, age_res)):
+        at_fail = drifted(rows, ages, every, t_fail)
         threshold[rows] = np.where(never, DAMAGE_THRESHOLD_CAP, np.where(fails_new, 0.0, at_fail))

@@ -166,7 +166,7 @@ def damage_with_esr_feedback(hours, ambient_c, rated_life_h, rated_temp_c, rippl
                              esr0_ohm, diameter_mm, length_mm,
                              h_w_per_cm2_k=P.HEAT_TRANSFER_W_PER_CM2_K, law=P.DEFAULT_LAW,
                              activation_energy_ev=None, steps=P.RK4_STEPS, damage0=0.0,
-                             esr_ratio_at_end=P.ESR_RATIO_AT_END):
+                             esr_ratio_at_end=P.ESR_RATIO_AT_END, extra_rate_per_h=0.0):
     """Damage after a constant-ambient interval, with ESR drift fed back into ripple heating.
 
     Parameters
@@ -187,6 +187,10 @@ def damage_with_esr_feedback(hours, ambient_c, rated_life_h, rated_temp_c, rippl
         Damage at the start of the interval [-].
     esr_ratio_at_end : float, default 2.0
         As in :func:`esr_at_damage`.
+    extra_rate_per_h : float or array-like, default 0
+        Damage per hour added to the thermal rate [1/h], >= 0: damage from
+        elsewhere (e.g. the part's unpowered ageing) spread evenly over the
+        interval, so that it raises the ESR that heats the part as it goes.
 
     Returns
     -------
@@ -196,7 +200,7 @@ def damage_with_esr_feedback(hours, ambient_c, rated_life_h, rated_temp_c, rippl
 
     Notes
     -----
-    .. math:: \\frac{dD}{dt} = \\frac{1}{L\\left(T_a + \\frac{I^2 ESR_0 r^D}{h A}\\right)}
+    .. math:: \\frac{dD}{dt} = \\frac{1}{L\\left(T_a + \\frac{I^2 ESR_0 r^D}{h A}\\right)} + k_{extra}
 
     Classic fixed-step Runge-Kutta (4th order) on all positions at once.  The
     right-hand side grows super-exponentially in D, so D is capped at
@@ -218,15 +222,16 @@ def damage_with_esr_feedback(hours, ambient_c, rated_life_h, rated_temp_c, rippl
     t0 = _check("rated_temp_c", rated_temp_c, "temperature")
     r = _check_range("esr_ratio_at_end", esr_ratio_at_end, 1.0, np.inf)
     d0 = _check("damage0", damage0, "nonnegative")
+    extra = _check("extra_rate_per_h", extra_rate_per_h, "nonnegative")
     if int(steps) != steps or steps < 1:
         raise ValueError("steps must be a positive integer")
     rise0 = np.asarray(ripple_rise_k(ripple_current_a, esr0_ohm, diameter_mm, length_mm,
                                      h_w_per_cm2_k))
-    shape = np.broadcast_shapes(t.shape, amb.shape, l0.shape, t0.shape, rise0.shape, d0.shape)
+    shape = np.broadcast_shapes(t.shape, amb.shape, l0.shape, t0.shape, rise0.shape, d0.shape, extra.shape)
     dmax = P.DAMAGE_MAX
 
     def rate(d):
-        return _inverse_life(amb + rise0 * r ** np.minimum(d, dmax), l0, t0, ea)
+        return _inverse_life(amb + rise0 * r ** np.minimum(d, dmax), l0, t0, ea) + extra
 
     dt = t / int(steps)
     d = np.broadcast_to(d0, shape).astype(np.float64)

@@ -269,6 +269,22 @@ def test_esr_feedback_without_ripple_is_plain_miner():
     assert_allclose(got, 0.25 + 3000.0 / 32000.0, rtol=1e-12)
 
 
+def test_esr_feedback_with_an_extra_even_rate_matches_solve_ivp():
+    # Shelf damage spread evenly over the interval raises the ESR as it goes:
+    # dD/dh = 1/L(Ta + rise0 2**D) + k, against scipy.integrate.solve_ivp.
+    rise0 = ph.ripple_rise_k(1.5, 0.1, 16, 35)
+
+    def rhs(_t, d):
+        return [1.0 / ph.life_hours_10k(2000.0, 105.0, 80.0 + rise0 * 2.0 ** d[0]) + 2e-4]
+
+    ref = integrate.solve_ivp(rhs, (0.0, 4000.0), [0.0], method="DOP853", rtol=1e-12, atol=1e-14).y[0, -1]
+    got = ph.damage_with_esr_feedback(4000.0, 80.0, 2000.0, 105.0, 1.5, 0.1, 16, 35, extra_rate_per_h=2e-4)
+    assert_allclose(got, ref, rtol=1e-6)
+    # without ripple the extra rate simply adds (Miner's rule)
+    plain = ph.damage_with_esr_feedback(3000.0, 65.0, 2000.0, 105.0, 0.0, 0.1, 10, 20, extra_rate_per_h=1e-5)
+    assert_allclose(plain, 3000.0 / 32000.0 + 0.03, rtol=1e-12)
+
+
 def test_esr_feedback_runaway_is_capped():
     got = ph.damage_with_esr_feedback(1e6, 100.0, 1000.0, 105.0, 5.0, 1.0, 5, 11)
     assert got == P.DAMAGE_MAX
