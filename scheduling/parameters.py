@@ -151,6 +151,43 @@ FRAILTY_WINDOW = 12.0
 FRAILTY_GRID_POINTS = 1201
 FRAILTY_LN_HAZARD_MAX = 30.0
 FRAILTY_TABLE_POINTS = 601
+#: A frailty sigma shared by at most this many hazards is integrated directly
+#: rather than tabulated (a unit's own sigma after bench readings).  numerical.
+FRAILTY_DIRECT_MAX = 512
+
+# --- Bench readings (findings) ----------------------------------------------
+
+#: Error of an ESR reading as the log-sd of the measured/true ESR [-].  Our
+#: assumption: an ESR meter of about +-5 % and a new part's ESR scattering
+#: below the data sheet's maximum by some 15-20 % (from memory); 0.2 in log.
+READING_ESR_LOG_SD = 0.2
+#: Error of a capacitance reading as a fraction of the rated value [-].
+#: Electrolytics are marked +-20 % (IEC 60062 tolerance code M, from memory);
+#: taken as two standard deviations, so 0.10.
+READING_CAPACITANCE_REL_SD = 0.10
+#: Error of the pump pair's ESR inferred from a rail reading, as a log-sd
+#: [-].  Our assumption: the load current and the switch resistance are known
+#: to about +-30 %.
+READING_RAIL_LOG_SD = 0.3
+#: How far one position's ageing strays from its unit's shared multiplier, as
+#: a log-sd [-] (batch, place in the case).  Our assumption, no source; it
+#: keeps one precise reading from fixing the whole unit's frailty.
+READING_PART_LOG_SD = 0.25
+#: A read part's future rate is its predicted rate times measured / predicted
+#: damage, clipped to this range [-].  Our choice: beyond a factor of four
+#: either way a single reading is more likely a meter or data error (another
+#: series fitted, a wrong rating) than a true rate.
+RATE_FACTOR_MIN = 0.25
+RATE_FACTOR_MAX = 4.0
+#: Damage of a pump part taken as the scale of a new pair when solving a rail
+#: reading (both predicted at zero) [-].  numerical.
+PUMP_PAIR_DAMAGE_FLOOR = 1e-3
+
+#: Leakage limit of the data-sheet convention: ``k * C[uF] * U[V]`` uA or the
+#: floor, whichever is greater, after 2 min at 20 degC.  [V, data-sheet
+#: convention] references.md §2.
+LEAKAGE_LIMIT_UA_PER_UF_V = 0.01
+LEAKAGE_LIMIT_FLOOR_UA = 3.0
 
 # --- Plausibility of a part's figures (physics.plausibility) -----------------
 

@@ -23,6 +23,8 @@ One module per topic, one function per published model:
 - :mod:`.safety`: stored energy and discharge time;
 - :mod:`.plausibility`: whether a part's figures could be a real part's
   (charge per can volume, tan delta implied by its ESR, ripple heating);
+- :mod:`.findings`: bench readings: damage from a measured ESR, capacitance
+  or pump rail, the unit's frailty after readings, a read part's rate;
 - :mod:`.validation`: the argument checks they share.
 
 Everything public is importable from here: ``from scheduling.physics import
@@ -46,6 +48,13 @@ from .drift import (
     damage_from_esr,
     damage_with_esr_feedback,
     esr_at_damage,
+)
+from .findings import (
+    damage_from_readings,
+    frailty_posterior,
+    leakage_limit_ua,
+    pump_damage_from_rail,
+    rate_factor,
 )
 from .life import (
     can_area_cm2,
@@ -84,6 +93,7 @@ __all__ = [
     "conditional_failure_probability", "unit_failure_probability", "threshold_pump",
     "threshold_coupling", "threshold_reservoir", "can_volume_cm3", "charge_density_uc_per_cm3",
     "tan_delta_from_esr", "implausible_parts", "CHARGE_DENSITY_RANGE_UC_PER_CM3",
+    "damage_from_readings", "pump_damage_from_rail", "frailty_posterior", "rate_factor", "leakage_limit_ua",
 ]
 
 # The docstring examples of the topic modules, for ``doctest.testmod`` on this package.

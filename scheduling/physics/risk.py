@@ -211,6 +211,26 @@ def _log_laplace_table(hazard_sigma):
     return scipy.interpolate.CubicSpline(ln_h, value, extrapolate=True)
 
 
+def _log_laplace_one_sigma(flat, s, table):
+    """``ln E[exp(-Y H)]`` for a flat array of H and one sigma (see
+    :func:`frailty_log_laplace`); ``table``: read the spline, else integrate."""
+    out = -flat.copy()                                # sigma = 0: exactly -H
+    if s > 0:
+        finite = np.isfinite(flat) & (flat > 0)
+        with np.errstate(divide="ignore"):
+            ln_h = np.log(np.where(finite, flat, 1.0))
+        low = finite & (ln_h < -P.FRAILTY_LN_HAZARD_MAX)
+        out[low] = -np.exp(0.5 * s * s) * flat[low]     # E[Y] = exp(sigma**2 / 2)
+        mid = finite & ~low
+        if np.any(mid):
+            if table:
+                out[mid] = -np.exp(_log_laplace_table(s)(ln_h[mid]))
+            else:
+                out[mid] = _log_laplace_direct(flat[mid], s)
+    out[np.isinf(flat)] = -np.inf
+    return out
+
+
 def frailty_log_laplace(hazard, hazard_sigma):
     """Log of E[exp(-Y * hazard)] for a lognormal multiplier Y of median 1.
 
@@ -218,8 +238,9 @@ def frailty_log_laplace(hazard, hazard_sigma):
     ----------
     hazard : float or array-like
         Nominal cumulative hazard H [-], >= 0 (``inf`` allowed: gives -inf).
-    hazard_sigma : float
-        Standard deviation of ln Y [-], in [0, 4] (0: Y = 1 exactly).
+    hazard_sigma : float or array-like
+        Standard deviation of ln Y [-], in [0, 3] (0: Y = 1 exactly); an
+        array broadcast against ``hazard`` gives each element its own.
 
     Returns
     -------
@@ -237,7 +258,9 @@ def frailty_log_laplace(hazard, hazard_sigma):
     integrand falls off like a normal density on the left and doubly
     exponentially on the right), once per sigma on a grid of ln H, and read
     from a cubic spline of ``ln(-ln E)`` against ln H (smooth and nearly
-    straight).  Below ``exp(-30)`` the first-order ``-E[Y] H`` is used.
+    straight).  Below ``exp(-30)`` the first-order ``-E[Y] H`` is used.  A
+    sigma shared by few elements (``parameters.FRAILTY_DIRECT_MAX``) is
+    integrated directly instead of tabulated.
 
     References
     ----------
@@ -251,19 +274,21 @@ def frailty_log_laplace(hazard, hazard_sigma):
     -1.0
     """
     h = _check("hazard", hazard, "nonnegative", allow_inf=True)
-    s = float(_check_range("hazard_sigma", hazard_sigma, 0.0, P.FRAILTY_HAZARD_SIGMA_MAX))
+    sigmas = _check_range("hazard_sigma", hazard_sigma, 0.0, P.FRAILTY_HAZARD_SIGMA_MAX)
     flat = h.reshape(-1)
-    out = -flat.copy()                                # sigma = 0: exactly -H
-    if s > 0:
-        finite = np.isfinite(flat) & (flat > 0)
-        with np.errstate(divide="ignore"):
-            ln_h = np.log(np.where(finite, flat, 1.0))
-        low = finite & (ln_h < -P.FRAILTY_LN_HAZARD_MAX)
-        out[low] = -np.exp(0.5 * s * s) * flat[low]     # E[Y] = exp(sigma**2 / 2)
-        mid = finite & ~low
-        if np.any(mid):
-            out[mid] = -np.exp(_log_laplace_table(s)(ln_h[mid]))
-    out[np.isinf(flat)] = -np.inf
+    if sigmas.ndim == 0:
+        out = _log_laplace_one_sigma(flat, float(sigmas), table=True)
+    else:
+        # One sigma per element (a unit's own, after bench readings): each
+        # distinct value on its own; a few elements are integrated directly,
+        # many share a table.
+        every = np.broadcast_to(sigmas, h.shape).reshape(-1)
+        out = np.empty(flat.size)
+        values, which = np.unique(every, return_inverse=True)
+        for k, value in enumerate(values):
+            sel = which == k
+            out[sel] = _log_laplace_one_sigma(flat[sel], float(value),
+                                              table=np.count_nonzero(sel) > P.FRAILTY_DIRECT_MAX)
     return _out(out.reshape(h.shape))
 
 
@@ -281,7 +306,8 @@ def unit_conditional_hazard(hazard_now, hazard_later, weibull_shape, frailty_sig
         Weibull shape beta of the positions, > 0.
     frailty_sigma : float or array-like
         Standard deviation of the natural log of the unit's damage multiplier
-        Z [-], >= 0 (0: the plain Weibull series system).
+        Z [-], >= 0 (0: the plain Weibull series system); per unit after
+        bench readings (:func:`frailty_posterior`).
 
     Returns
     -------
