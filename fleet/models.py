@@ -17,6 +17,7 @@ from django.core.validators import MaxValueValidator, MinValueValidator, RegexVa
 from django.db import models
 from django.db.models import F, Q
 from django.utils import timezone
+from simple_history.models import HistoricalRecords
 
 RATED_TEMP_MIN_C = -55.0
 RATED_TEMP_MAX_C = 150.0
@@ -364,11 +365,14 @@ class Unit(models.Model):
     prior_storage_c = models.FloatField("prior use: storage temperature", default=20.0,
                                         validators=ambient_validators(), help_text="degC")
     notes = models.TextField(blank=True)
+    hold_reason = models.CharField(max_length=300, blank=True,
+                                   help_text="Why the unit is held, in words the desk can read.")
     records_version = models.PositiveIntegerField(
         default=1, editable=False,
         help_text="Goes up whenever the records the unit's exposure is worked out from change (a hire closed "
                   "or edited, fitted parts, dates, prior use, home location, the model's internal rise).",
     )
+    history = HistoricalRecords(excluded_fields=["records_version"])
 
     class Meta:
         ordering = ["asset_tag"]
@@ -396,6 +400,7 @@ class UnitCapacitor(CapacitorRatings):
     position = models.ForeignKey(Position, on_delete=models.PROTECT, related_name="fitted")
     installed_on = models.DateField(help_text="Date this part went in (date of manufacture for originals).")
     is_original = models.BooleanField(default=True)
+    history = HistoricalRecords()
 
     class Meta:
         ordering = ["unit", "position__designator"]
@@ -429,6 +434,7 @@ class Rental(models.Model):
     reported_faults = models.TextField(blank=True)
     checked_in_by = models.ForeignKey(settings.AUTH_USER_MODEL, null=True, blank=True,
                                       on_delete=models.SET_NULL, related_name="+")
+    history = HistoricalRecords()
 
     class Meta:
         ordering = ["-out_at"]
@@ -505,6 +511,9 @@ class ServiceRecord(models.Model):
     signed_off_by = models.ForeignKey(settings.AUTH_USER_MODEL, null=True, blank=True,
                                       on_delete=models.SET_NULL, related_name="+")
     signed_off_at = models.DateTimeField(null=True, blank=True)
+    bench_visit = models.ForeignKey("fleet.BenchVisit", null=True, blank=True, on_delete=models.SET_NULL,
+                                    related_name="service_records")
+    history = HistoricalRecords()
 
     class Meta:
         ordering = ["-performed_on", "-id"]
@@ -571,6 +580,7 @@ class MaintenancePolicy(models.Model):
     watch_days = models.PositiveIntegerField(
         default=180, help_text="A unit due within this many days is on the watch list."
     )
+    history = HistoricalRecords()
 
     class Meta:
         verbose_name_plural = "maintenance policies"
@@ -581,3 +591,8 @@ class MaintenancePolicy(models.Model):
 
     def __str__(self):
         return self.name + (" (active)" if self.active else "")
+
+
+# The workshop's records live beside this module (bench visits, readings,
+# check-outs against the forecast); imported here so the app registers them.
+from .bench_models import BenchVisit, CheckoutOverride, Reading  # noqa: E402,F401

@@ -20,7 +20,7 @@ from django.db import IntegrityError, transaction
 from django.db.models import F, Q
 from django.utils import timezone
 
-from .models import Position, Rental, ReplacedPart, ServiceRecord, Unit, UnitCapacitor
+from .models import CheckoutOverride, Position, Reading, Rental, ReplacedPart, ServiceRecord, Unit, UnitCapacitor
 
 RATING_FIELDS = (
     "capacitance_uf", "rated_voltage_v", "rated_temp_c", "rated_life_h", "esr_ohm", "tan_delta",
@@ -30,6 +30,13 @@ RATING_FIELDS = (
 
 class ServiceError(Exception):
     """A request the fleet rules refuse; the message is meant for the user."""
+
+
+def _by(obj, user):
+    """Name ``user`` as the author of ``obj``'s next saved version (audit trail)."""
+    if user is not None and getattr(user, "is_authenticated", False):
+        obj._history_user = user
+    return obj
 
 
 def _manufacture_date(unit):
@@ -104,27 +111,42 @@ def _open_rental(unit_id):
 
 
 @transaction.atomic
-def rental_open(*, unit_id, job_ref, out_at=None, expected_ambient_c=25.0, user=None):
+def rental_open(*, unit_id, job_ref, out_at=None, expected_ambient_c=25.0, user=None, override=None):
     """Record a unit going out on a hire.  Refuses a unit that is already out,
-    retired, held or on the bench, and a check-out before the last return."""
+    retired, held or on the bench, and a check-out before the last return.
+
+    ``override``: the desk sends the unit out against its forecast; a dict of
+    ``reason`` and what the forecast said (``forecast_status``,
+    ``forecast_due_date``, ``forecast_risk``), stored with who and when."""
     unit = Unit.objects.select_for_update().get(pk=unit_id)
     out_at = out_at or timezone.now()
     if _open_rental(unit.pk) is not None:
         raise ServiceError(f"{unit.asset_tag} is already out; check it in first.")
     if unit.status != Unit.Status.AVAILABLE:
-        raise ServiceError(f"{unit.asset_tag} is {unit.get_status_display().lower()}, not available for hire.")
+        why = f" ({unit.hold_reason})" if unit.status == Unit.Status.HOLD and unit.hold_reason else ""
+        raise ServiceError(f"{unit.asset_tag} is {unit.get_status_display().lower()}{why}, not available for hire; "
+                           "the workshop must release it first.")
     last = Rental.objects.filter(unit_id=unit.pk, in_at__isnull=False).order_by("-in_at").first()
     if last is not None and out_at < last.in_at:
         raise ServiceError(f"{unit.asset_tag} came back at {last.in_at:%Y-%m-%d %H:%M}; it cannot go out before that.")
     rental = Rental(unit=unit, job_ref=job_ref.strip(), out_at=out_at, expected_ambient_c=expected_ambient_c,
                     checked_out_by=user)
     rental.full_clean()
+    _by(rental, user)
     try:
         rental.save()
     except IntegrityError:
         raise ServiceError(f"{unit.asset_tag} is already out; check it in first.") from None
+    if override is not None:
+        reason = (override.get("reason") or "").strip()
+        if not reason:
+            raise ServiceError("Give the reason for sending the unit out against its forecast.")
+        CheckoutOverride.objects.create(
+            rental=rental, unit=unit, decided_at=rental.out_at, decided_by=user, reason=reason,
+            forecast_status=override.get("forecast_status", ""), forecast_due_date=override.get("forecast_due_date"),
+            forecast_risk=override.get("forecast_risk"))
     unit.status = Unit.Status.OUT
-    unit.save(update_fields=["status"])
+    _by(unit, user).save(update_fields=["status"])
     return rental
 
 
@@ -180,33 +202,42 @@ def rental_close(*, unit_id, in_at=None, venue_ambient_c, powered_hours=None, me
         rental.full_clean()
     except ValidationError as exc:
         raise ServiceError("; ".join(m for msgs in exc.message_dict.values() for m in msgs)) from None
-    rental.save()
+    _by(rental, user).save()
     if meter_reading_h is not None:
         unit.hour_meter_h = meter_reading_h
     unit.status = Unit.Status.HOLD if rental.reported_faults else Unit.Status.AVAILABLE
+    unit.hold_reason = f"Faults reported on return: {rental.reported_faults}"[:300] if rental.reported_faults else ""
     unit.records_version = F("records_version") + 1
-    unit.save(update_fields=["status", "hour_meter_h", "records_version"])
+    _by(unit, user).save(update_fields=["status", "hour_meter_h", "records_version", "hold_reason"])
     unit.refresh_from_db(fields=["records_version"])
     rental.unit = unit
     return rental
 
 
 @transaction.atomic
-def unit_hold(*, unit_id):
-    """Put an available unit on hold (the desk must not hire it out).  Returns
-    True if the status changed."""
-    return bool(Unit.objects.filter(pk=unit_id, status=Unit.Status.AVAILABLE).update(status=Unit.Status.HOLD))
+def unit_hold(*, unit_id, reason="", user=None):
+    """Put an available unit on hold (the desk must not hire it out), with the
+    reason in words the desk can read.  Returns True if the status changed."""
+    unit = Unit.objects.select_for_update().filter(pk=unit_id, status=Unit.Status.AVAILABLE).first()
+    if unit is None:
+        return False
+    unit.status, unit.hold_reason = Unit.Status.HOLD, reason[:300]
+    _by(unit, user).save(update_fields=["status", "hold_reason"])
+    return True
 
 
 @transaction.atomic
 def recap_record(*, unit_id, performed_on, replacements, technician=None, technician_name="", notes="",
-                 kind=ServiceRecord.Kind.RECAP):
+                 kind=ServiceRecord.Kind.RECAP, signed_off_by=None, bench_visit=None):
     """Record a service in which positions were replaced.
 
     ``replacements`` maps a designator to a dict of the new part's ratings
     (any rating left out is kept from the part that came out).  The unit's
     capacitor rows take the new ratings and the install date ``performed_on``;
-    the unit's records are marked changed when any part was replaced.
+    the unit's records are marked changed when any part was replaced.  Bench
+    readings of the parts taken out (and of a replaced charge pump's rail)
+    are kept as findings, no longer about the parts fitted.  ``signed_off_by``
+    signs the record off now.
     """
     unit = Unit.objects.select_for_update().get(pk=unit_id)
     fitted = {
@@ -217,9 +248,10 @@ def recap_record(*, unit_id, performed_on, replacements, technician=None, techni
     if unknown:
         raise ServiceError(f"{unit.asset_tag} has no position {', '.join(unknown)}.")
     record = ServiceRecord(unit=unit, kind=kind, performed_on=performed_on, technician=technician,
-                           technician_name=technician_name, notes=notes)
+                           technician_name=technician_name, notes=notes, bench_visit=bench_visit,
+                           signed_off_by=signed_off_by, signed_off_at=timezone.now() if signed_off_by else None)
     record.full_clean()
-    record.save()
+    _by(record, technician).save()
     parts = []
     for designator, new in sorted(replacements.items()):
         cap = fitted[designator]
@@ -240,8 +272,13 @@ def recap_record(*, unit_id, performed_on, replacements, technician=None, techni
             setattr(cap, f, v)
         cap.installed_on = performed_on
         cap.is_original = False
-        cap.save()
+        _by(cap, technician).save()
     ReplacedPart.objects.bulk_create(parts)
     if replacements:
+        replaced_ids = [fitted[d].position_id for d in replacements]
+        Reading.objects.filter(unit_id=unit.pk, part_removed=False).filter(
+            Q(position_id__in=replaced_ids) | Q(pump_position_id__in=replaced_ids)
+            | Q(pump_position__pump_partner__in=list(replacements), kind=Reading.Kind.RAIL)
+        ).update(part_removed=True)
         units_mark_changed(unit_ids=[unit.pk])
     return record

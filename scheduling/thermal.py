@@ -32,7 +32,7 @@ from django.db.models import Avg, Count, F, Q, Sum
 from django.db.models.functions import ExtractMonth
 from django.utils import timezone
 
-from fleet.models import Location, Rental, TemperatureSample, Unit, UnitCapacitor
+from fleet.models import Location, Reading, Rental, TemperatureSample, Unit, UnitCapacitor
 
 from . import histogram as H
 from .models import HistogramSnapshot, ThermalHistory
@@ -189,6 +189,20 @@ def counted_rentals(rentals, until):
 
 # --- services ----------------------------------------------------------------
 
+def snapshot_days(unit_ids):
+    """{unit id: dates a snapshot is wanted for}: the install date of every
+    replaced part, and the date of every bench reading of the parts fitted
+    (a reading's part counts its damage since the reading from there)."""
+    days = defaultdict(set)
+    for unit_id, day in (UnitCapacitor.objects.filter(unit_id__in=unit_ids, is_original=False)
+                         .values_list("unit_id", "installed_on").distinct()):
+        days[unit_id].add(day)
+    for unit_id, taken_at in (Reading.objects.filter(unit_id__in=unit_ids, part_removed=False)
+                              .values_list("unit_id", "taken_at")):
+        days[unit_id].add(timezone.localdate(taken_at))
+    return days
+
+
 @dataclass
 class SyncReport:
     """What :func:`thermal_sync` did, in numbers."""
@@ -229,7 +243,8 @@ def thermal_sync(*, unit_ids=None, until=None, advance_storage=False):
     - otherwise: rebuild from the records up to ``until`` (default now; a unit
       out on hire up to its check-out).
 
-    Snapshots are written for install dates of fitted parts that have none.
+    Snapshots are written for install dates of fitted parts and dates of
+    bench readings that have none.
     With ``advance_storage`` every history not out on hire then counts storage
     up to ``until`` (the nightly job).  Idempotent; a fixed number of queries
     whatever the number of units, plus one small one per unit changed.
@@ -261,10 +276,7 @@ def _sync_units(units, until, report):
     }
     has_closed = set(Rental.objects.filter(unit_id__in=ids, in_at__isnull=False)
                      .values_list("unit_id", flat=True).distinct())
-    wanted = defaultdict(set)  # unit -> install dates of its replaced parts
-    for unit_id, day in (UnitCapacitor.objects.filter(unit_id__in=ids, is_original=False)
-                         .values_list("unit_id", "installed_on").distinct()):
-        wanted[unit_id].add(day)
+    wanted = snapshot_days(ids)  # unit -> install dates of its replaced parts, reading dates
     have = defaultdict(set)
     for unit_id, day in HistogramSnapshot.objects.filter(unit_id__in=ids).values_list("unit_id", "taken_on"):
         have[unit_id].add(day)
@@ -384,8 +396,9 @@ def thermal_rebuild(*, unit_ids=None, until=None):
     """Rebuild histories and snapshots from the records.
 
     ``until`` defaults to now; a unit out on hire is counted to its check-out.
-    A snapshot is kept for every install date of the unit's replaced parts.
-    Five queries whatever the number of units, plus the bulk writes.
+    A snapshot is kept for every install date of the unit's replaced parts
+    and every date of a bench reading of its fitted parts.
+    Six queries whatever the number of units, plus the bulk writes.
     """
     until = until or timezone.now()
     units = list(Unit.objects.select_related("gear_model") if unit_ids is None else _units(unit_ids))
@@ -399,10 +412,7 @@ def thermal_rebuild(*, unit_ids=None, until=None):
             open_out[r.unit_id] = r.out_at
         else:
             rentals_by_unit[r.unit_id].append(r)
-    days_by_unit = defaultdict(set)
-    for unit_id, day in (UnitCapacitor.objects.filter(unit_id__in=ids, is_original=False)
-                         .values_list("unit_id", "installed_on").distinct()):
-        days_by_unit[unit_id].add(day)
+    days_by_unit = snapshot_days(ids)
     snaps_by_unit = defaultdict(dict)
     for s in HistogramSnapshot.objects.filter(unit_id__in=ids).only("id", "unit_id", "taken_on", "taken_at"):
         snaps_by_unit[s.unit_id][s.taken_on] = s

@@ -92,7 +92,8 @@ def test_a_held_unit_is_refused(client, users, fleet):
     Unit.objects.filter(pk=fleet.unit.pk).update(status=Unit.Status.HOLD)
     client.force_login(users.desk)
     response = post(client)
-    assert "NMB-0001 is held, not available for hire." in response.context["form"].non_field_errors()
+    assert ("NMB-0001 is held, not available for hire; the workshop must release it first."
+            in response.context["form"].non_field_errors())
     assert not Rental.objects.exists()
 
 
