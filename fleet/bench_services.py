@@ -219,8 +219,8 @@ def reading_record(*, unit_id, designator="", esr_ohm=None, esr_freq_hz=None, ca
         pairs = pump_pairs(unit.pk)
         chosen = None
         pump = (pump or "").strip().upper()
-        negative = rail_measured_v is not None and (rail_measured_v < 0 or _expected_sign(rail_name,
-                                                                                        rail_expected_v) < 0)
+        expected = _expected_sign(rail_name, rail_expected_v)
+        negative = rail_measured_v is not None and (expected < 0 or (expected == 0 and rail_measured_v < 0))
         if pump:
             if pump not in pairs:
                 raise ServiceError(f"{unit.asset_tag} has no charge pump with the flying capacitor {pump}.")

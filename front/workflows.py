@@ -6,7 +6,8 @@ call alike, in one transaction:
 - ``unit_create``: add a unit with its capacitor population and start its
   thermal history; ``unit_refresh``: bring one unit's history and forecast
   up to date after an edit;
-- ``rental_check_out``: the desk hands a unit out (register only);
+- ``rental_check_out``: the desk hands a unit out; against a due or overdue
+  forecast only with a recorded reason;
 - ``rental_check_in``: the unit comes back: close the hire, add its exposure,
   recompute the unit's forecast at once and hold it when it is due, overdue or
   came back with a fault; ``return_verdict`` words the answer for the desk;
@@ -14,6 +15,9 @@ call alike, in one transaction:
   snapshots up to date and recompute the forecast;
 - ``import_csv``: import one register file, then bring every history it made
   stale up to date.
+
+The workshop's loop (bench intake, readings, recap at the bench, release)
+is in ``front.bench``.
 
 The register (``fleet``) knows nothing of the engine; the engine
 (``scheduling``) reads the register.  Only this layer calls both.
@@ -48,10 +52,31 @@ def unit_refresh(*, unit_id):
     forecast_refresh(unit_ids=[unit_id])
 
 
-def rental_check_out(*, unit_id, job_ref, out_at=None, expected_ambient_c=25.0, user=None):
-    """Check a unit out on a hire (see ``fleet.services.rental_open``)."""
+class OverrideNeeded(ServiceError):
+    """The forecast says due or overdue: the check-out needs a recorded reason."""
+
+
+@transaction.atomic
+def rental_check_out(*, unit_id, job_ref, out_at=None, expected_ambient_c=25.0, user=None, override_reason=""):
+    """Check a unit out on a hire (see ``fleet.services.rental_open``).
+
+    A unit whose stored forecast is due or overdue goes out only with
+    ``override_reason``: who, when and why are stored with what the forecast
+    said (``OverrideNeeded`` otherwise).  A reason given for a unit the
+    forecast does not stop is not recorded.
+    """
+    forecast = UnitForecast.objects.filter(unit_id=unit_id).first()
+    override = None
+    if forecast is not None and forecast.status in (UnitForecast.Status.DUE, UnitForecast.Status.OVERDUE):
+        unit = Unit.objects.get(pk=unit_id)
+        if unit.status == Unit.Status.AVAILABLE and not (override_reason or "").strip():
+            raise OverrideNeeded(
+                f"{unit.asset_tag} is {forecast.get_status_display().lower()} for a recap; it should stay in for "
+                "the workshop.  To send it out anyway, give the reason (it is recorded with your name).")
+        override = {"reason": override_reason, "forecast_status": forecast.status,
+                    "forecast_due_date": forecast.due_date, "forecast_risk": forecast.risk}
     return register.rental_open(unit_id=unit_id, job_ref=job_ref, out_at=out_at,
-                                expected_ambient_c=expected_ambient_c, user=user)
+                                expected_ambient_c=expected_ambient_c, user=user, override=override)
 
 
 @transaction.atomic
@@ -72,7 +97,10 @@ def rental_check_in(*, unit_id, in_at=None, venue_ambient_c, powered_hours=None,
     run = forecast_refresh(unit_ids=[unit_id], today=timezone.localdate(rental.in_at))
     if (rental.unit.status == Unit.Status.AVAILABLE and run.fleet.n_units
             and run.result.status[0] in ("due", "overdue")):
-        register.unit_hold(unit_id=unit_id)
+        forecast = UnitForecast.objects.filter(unit_id=unit_id).first()
+        register.unit_hold(unit_id=unit_id, user=user, reason=(
+            f"The forecast says {run.result.status[0]} for a recap"
+            + (f": {forecast.reasons[0]}" if forecast is not None and forecast.reasons else ".")))
         rental.unit.status = Unit.Status.HOLD
     return rental
 
@@ -119,12 +147,13 @@ def return_verdict(rental, forecast):
 
 @transaction.atomic
 def service_record_recap(*, unit_id, performed_on, replacements, technician=None, technician_name="", notes="",
-                         kind=ServiceRecord.Kind.RECAP, refresh=True):
+                         kind=ServiceRecord.Kind.RECAP, refresh=True, signed_off_by=None, bench_visit=None):
     """Record a service in which positions were replaced, then bring the unit's
     thermal history (and the snapshot the new parts count from) up to date and,
     with ``refresh``, recompute its forecast.  Returns the service record."""
     record = register.recap_record(unit_id=unit_id, performed_on=performed_on, replacements=replacements,
-                                   technician=technician, technician_name=technician_name, notes=notes, kind=kind)
+                                   technician=technician, technician_name=technician_name, notes=notes, kind=kind,
+                                   signed_off_by=signed_off_by, bench_visit=bench_visit)
     thermal_sync(unit_ids=[unit_id])
     if refresh:
         forecast_refresh(unit_ids=[unit_id])

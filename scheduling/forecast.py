@@ -21,6 +21,8 @@ The model, in order:
    Storage between hires at the home location's monthly temperatures.  The
    yearly damage is spread evenly over the year (the seasons are not resolved
    in the projection; they are in the history).
+   Bench readings (:mod:`scheduling.readings`) then set a measured part's
+   damage and rate, and update the unit's shared frailty.
 4. Threshold D* per capacitor from its role (physics.threshold_*), capped at
    ``DAMAGE_THRESHOLD_CAP``.
 5. Scatter: damage-to-failure is Weibull with its median at D*; the unit's
@@ -56,6 +58,7 @@ from .crossing import (  # noqa: F401  (the solver's settings, read by tests and
 )
 from .days import DAYS_PER_YEAR, HOURS_PER_YEAR, MONTH_HOURS, date_to_day, day_to_date  # noqa: F401
 from .grouping import _first_per_unit, _per_unit, _unit_bounds  # noqa: F401
+from .readings import ReadingsResult, apply_readings, unit_hazard
 from .reasons import _reasons
 from .thresholds import DAMAGE_THRESHOLD_CAP, ROLE_CODES, ROLE_NAMES, _thresholds  # noqa: F401
 from .triage import triage
@@ -135,6 +138,8 @@ class FleetForecast:
     act_by_day: np.ndarray = None    # per unit: never before today; NaN nothing due
     action: np.ndarray = None        # per capacitor: triage.LEAVE / MEASURE / REPLACE
     why: np.ndarray = None           # per capacitor: triage.WHY_*
+    # bench readings (scheduling/readings.py): measured values, rate factors, the units' frailty
+    readings: ReadingsResult = None
 
 
 def _inverse_life(fa_rated_life_h, rated_temp_c, temp_c, opts):
@@ -144,11 +149,15 @@ def _inverse_life(fa_rated_life_h, rated_temp_c, temp_c, opts):
     return 1.0 / physics.life_hours_arrhenius(fa_rated_life_h, rated_temp_c, temp_c, opts.activation_energy_ev)
 
 
-def _histogram_damage(fa, rise_ripple_k, opts):
-    """Damage counted in the histories, per capacitor (step 1)."""
-    base = fa.baseline_index
+def _histogram_damage(fa, rise_ripple_k, opts, rows=None, baseline=None):
+    """Damage counted in the histories, per capacitor (step 1): since each
+    part went in; or for the capacitor ``rows`` only, since the snapshots
+    ``baseline`` (index into the snapshots, -1: since manufacture)."""
+    rows = np.arange(fa.n_caps) if rows is None else rows
+    base = fa.baseline_index[rows] if baseline is None else baseline
+    n, ui = rows.size, fa.unit_index[rows]
     has_base = base >= 0
-    L0, T0 = fa.rated_life_h, fa.rated_temp_c
+    L0, T0, rise = fa.rated_life_h[rows], fa.rated_temp_c[rows], rise_ripple_k[rows]
     if opts.law == "10k":
         # Exact factorisation of the 10 K rule: sum_b h_b / L(T_b + r)
         #   = (sum_b h_b 2**(T_b/10)) * 2**((r - T0)/10) / L0
@@ -156,24 +165,24 @@ def _histogram_damage(fa, rise_ripple_k, opts):
         sp_u, su_u = fa.hist_powered @ w, fa.hist_unpowered @ w
         sp_s = fa.snap_powered @ w if fa.snap_powered.size else np.zeros(0)
         su_s = fa.snap_unpowered @ w if fa.snap_unpowered.size else np.zeros(0)
-        sp = sp_u[fa.unit_index] - np.where(has_base, sp_s[np.maximum(base, 0)] if sp_s.size else 0.0, 0.0)
-        su = su_u[fa.unit_index] - np.where(has_base, su_s[np.maximum(base, 0)] if su_s.size else 0.0, 0.0)
-        powered = sp / physics.life_hours_10k(L0, T0, rise_ripple_k)
+        sp = sp_u[ui] - np.where(has_base, sp_s[np.maximum(base, 0)] if sp_s.size else 0.0, 0.0)
+        su = su_u[ui] - np.where(has_base, su_s[np.maximum(base, 0)] if su_s.size else 0.0, 0.0)
+        powered = sp / physics.life_hours_10k(L0, T0, rise)
         unpowered = su / physics.life_hours_10k(L0, T0, 0.0)
         return np.maximum(powered, 0.0), np.maximum(unpowered, 0.0)
-    powered = np.empty(fa.n_caps)
-    unpowered = np.empty(fa.n_caps)
-    for start in range(0, fa.n_caps, CHUNK):
+    powered = np.empty(n)
+    unpowered = np.empty(n)
+    for start in range(0, n, CHUNK):
         sl = slice(start, start + CHUNK)
-        hp = fa.hist_powered[fa.unit_index[sl]]
-        hu = fa.hist_unpowered[fa.unit_index[sl]]
+        hp = fa.hist_powered[ui[sl]]
+        hu = fa.hist_unpowered[ui[sl]]
         b = base[sl]
         if fa.snap_powered.size and np.any(b >= 0):
             hp = hp - np.where((b >= 0)[:, None], fa.snap_powered[np.maximum(b, 0)], 0.0)
             hu = hu - np.where((b >= 0)[:, None], fa.snap_unpowered[np.maximum(b, 0)], 0.0)
         hp, hu = np.maximum(hp, 0.0), np.maximum(hu, 0.0)
         kw = dict(law="arrhenius", activation_energy_ev=opts.activation_energy_ev)
-        powered[sl] = physics.damage_from_histogram(hp, H.BIN_CENTRES_C, L0[sl], T0[sl], rise_ripple_k[sl], **kw)
+        powered[sl] = physics.damage_from_histogram(hp, H.BIN_CENTRES_C, L0[sl], T0[sl], rise[sl], **kw)
         unpowered[sl] = physics.damage_from_histogram(hu, H.BIN_CENTRES_C, L0[sl], T0[sl], 0.0, **kw)
     return powered, unpowered
 
@@ -324,6 +333,11 @@ def compute(fa, *, today, policy=None, options=None):
     since = np.maximum(today_day - np.maximum(fa.accounted_day[ui], fa.installed_day), 0.0)
     damage = d_hist + rate * since
 
+    # 2b. bench readings: measured damage, rate factors, the unit's frailty
+    found = apply_readings(fa, damage=damage, rate=rate, today_day=today_day, frailty_sigma=opts.frailty_sigma,
+                           damage_since=lambda rows, snaps: _histogram_damage(fa, rise_ripple, opts, rows, snaps))
+    damage, rate = found.damage, found.rate
+
     # 4. role thresholds
     threshold = _thresholds(fa, damage, rate, today_day)
 
@@ -362,12 +376,16 @@ def compute(fa, *, today, policy=None, options=None):
         (only the units ``subset``, renumbered 0.., when given); with
         ``log_hazard`` the log of the summed hazard instead (what the
         crossing solver works on: far closer to linear in time than the risk)."""
+        units = np.arange(n)
         if subset is not None:
             local = np.full(n, -1, dtype=np.int64)
             local[subset] = np.arange(subset.size)
             keep = local[unit_of_row] >= 0
-            rows, unit_of_row, n = rows[keep], local[unit_of_row[keep]], subset.size
+            rows, unit_of_row, n, units = rows[keep], local[unit_of_row[keep]], subset.size, subset
         xn, xr, xp = x_now[rows], x_rate[rows], x_rate_past[rows]
+        # Readings: the measured rows' hazard leaves the unit's (updated) frailty.
+        frail = None if not found.any else (~found.measured[rows], np.exp(beta * found.frailty_mean[units]),
+                                            found.frailty_sd[units])
 
         def x_at(t):
             return np.maximum(xn + np.where(t < 0, xp, xr) * t, 0.0)
@@ -377,9 +395,8 @@ def compute(fa, *, today, policy=None, options=None):
             """Unit risk over the horizon starting ``t_days`` (per unit) from today."""
             t = t_days[unit_of_row]
             x0, x1 = x_at(t), x_at(t + policy.horizon_days)
-            h0 = np.bincount(unit_of_row, weights=physics.cumulative_hazard(x0, 1.0, beta), minlength=n)
-            h1 = np.bincount(unit_of_row, weights=physics.cumulative_hazard(x1, 1.0, beta), minlength=n)
-            total = physics.unit_conditional_hazard(h0, h1, beta, opts.frailty_sigma)
+            total = unit_hazard(physics.cumulative_hazard(x0, 1.0, beta), physics.cumulative_hazard(x1, 1.0, beta),
+                                unit_of_row, n, beta, opts.frailty_sigma, frail)
             if log_hazard:
                 return np.where(dead, np.inf, np.log(np.maximum(total, 1e-300)))
             return np.where(dead, 1.0, -np.expm1(-total))
@@ -441,4 +458,4 @@ def compute(fa, *, today, policy=None, options=None):
                          rate_per_day=rate, reaches_day=reaches, risk=risk, due_day=due_day, status=status,
                          storage_reform=storage_reform, max_damage_ratio=ratio, reasons=reasons,
                          hire_damage=hire_damage, hire_risk=tri.hire_risk, score=tri.score, priority=tri.priority,
-                         act_by_day=tri.act_by_day, action=tri.action, why=tri.why)
+                         act_by_day=tri.act_by_day, action=tri.action, why=tri.why, readings=found)

@@ -12,9 +12,10 @@ from dataclasses import dataclass, field
 
 import numpy as np
 from django.db import connection
-from django.db.models import Count, F, FloatField, Func, Sum
+from django.db.models import Count, F, FloatField, Func, Q, Sum
+from django.utils import timezone
 
-from fleet.models import GearModel, MaintenancePolicy, Position, Rental, Unit, UnitCapacitor
+from fleet.models import GearModel, MaintenancePolicy, Position, Reading, Rental, Unit, UnitCapacitor
 
 from . import histogram as H
 from . import physics
@@ -73,6 +74,18 @@ class FleetArrays:
     # snapshots
     snap_powered: np.ndarray = None
     snap_unpowered: np.ndarray = None
+    # bench readings of the fitted parts (scheduling/readings.py); None: none loaded
+    reading_cap: np.ndarray = None        # capacitor row of each capacitor reading
+    reading_day: np.ndarray = None        # its date, days since 1970
+    reading_snap: np.ndarray = None       # snapshot of that date, -1 none yet
+    reading_esr_ohm: np.ndarray = None    # NaN: not measured
+    reading_capacitance_f: np.ndarray = None
+    rail_fly: np.ndarray = None           # capacitor row of the flying part of the pump read
+    rail_day: np.ndarray = None
+    rail_snap: np.ndarray = None
+    rail_measured_v: np.ndarray = None
+    rail_input_v: np.ndarray = None       # NaN: the pump's design input
+    rail_load_a: np.ndarray = None
 
     @property
     def n_units(self):
@@ -295,7 +308,9 @@ def load_fleet(*, unit_ids=None, today, min_history_days=180):
                        dtype=np.int64)
     circuit = {name: np.array([_f(p[6 + j]) for p in pos_rows]) for j, name in enumerate(CIRCUIT_FIELDS)}
 
-    baseline_index, sp, su = _baselines(caps, filter_ids)
+    readings = _readings(filter_ids)
+    baseline_index, sp, su, snap_at = _baselines(caps, filter_ids, extra_units=readings["unit_id"])
+    readings = _reading_arrays(readings, caps, snap_at)
 
     esr0 = caps["esr_ohm"].copy()
     missing = np.isnan(esr0)
@@ -325,30 +340,89 @@ def load_fleet(*, unit_ids=None, today, min_history_days=180):
         pos_role=np.array([ROLE_CODES.get(p[3], 0) for p in pos_rows], dtype=np.int64),
         pos_ripple_a=np.array([_f(p[4]) for p in pos_rows]),
         pos_partner=partner, pos_circuit=circuit,
-        snap_powered=sp, snap_unpowered=su,
+        snap_powered=sp, snap_unpowered=su, **readings,
     )
 
 
-def _baselines(caps, unit_ids):
+def _baselines(caps, unit_ids, extra_units=()):
     """Each replaced part's snapshot: the one its unit took on the part's
-    install date.  Returns (index into the snapshots or -1, powered, unpowered)."""
+    install date.  Returns (index into the snapshots or -1, powered,
+    unpowered, ``snap_at``: a function from (unit ids, days) to snapshot
+    indices).  Snapshots are read for the units with replaced parts and
+    ``extra_units`` (units with readings)."""
     replaced = ~caps["is_original"]
     n = caps["id"].size
-    if not replaced.any():
-        return np.full(n, -1, dtype=np.int64), np.zeros((0, H.N_BINS)), np.zeros((0, H.N_BINS))
+    wanted = np.union1d(np.unique(caps["unit_id"][replaced]), np.asarray(extra_units, dtype=np.int64))
+    if not wanted.size:
+        return (np.full(n, -1, dtype=np.int64), np.zeros((0, H.N_BINS)), np.zeros((0, H.N_BINS)),
+                lambda units, days: np.full(np.shape(units), -1, dtype=np.int64))
     qs = HistogramSnapshot.objects.order_by("unit_id", "taken_on")
     if unit_ids is not None:
-        qs = qs.filter(unit_id__in=np.unique(caps["unit_id"][replaced]).tolist())
+        qs = qs.filter(unit_id__in=wanted.tolist())
     rows = list(qs.values_list("unit_id", "taken_on", "powered", "unpowered"))
     sp = H.stack_from_bytes([r[2] for r in rows]) if rows else np.zeros((0, H.N_BINS))
     su = H.stack_from_bytes([r[3] for r in rows]) if rows else np.zeros((0, H.N_BINS))
     # (unit, day) as one sortable key; days since 1970 fit in 2**20 for millennia.
     snap_key = np.array([r[0] * (1 << 20) + (r[1] - _EPOCH).days for r in rows], dtype=np.int64)
-    cap_key = caps["unit_id"] * (1 << 20) + np.floor(caps["installed_day"]).astype(np.int64)
     order = np.argsort(snap_key, kind="stable")
-    found = _index_of(snap_key[order], cap_key)
-    index = np.where(replaced & (found >= 0), order[np.maximum(found, 0)] if order.size else -1, -1)
-    return index.astype(np.int64), sp, su
+
+    def snap_at(units, days):
+        key = np.asarray(units, dtype=np.int64) * (1 << 20) + np.floor(days).astype(np.int64)
+        found = _index_of(snap_key[order], key)
+        return np.where(found >= 0, order[np.maximum(found, 0)] if order.size else -1, -1).astype(np.int64)
+
+    index = np.where(replaced, snap_at(caps["unit_id"], caps["installed_day"]), -1)
+    return index.astype(np.int64), sp, su, snap_at
+
+
+def _readings(unit_ids):
+    """The bench readings of fitted parts (not of parts since replaced) that
+    can move the forecast: capacitors with an ESR or a capacitance, negative
+    rails of a charge pump under a load.  One query."""
+    qs = Reading.objects.filter(part_removed=False).filter(
+        Q(kind=Reading.Kind.CAPACITOR, esr_ohm__isnull=False) | Q(kind=Reading.Kind.CAPACITOR,
+                                                                  capacitance_uf__isnull=False)
+        | Q(kind=Reading.Kind.RAIL, pump_position__isnull=False, rail_load_ma__gt=0))
+    if unit_ids is not None:
+        qs = qs.filter(unit_id__in=unit_ids)
+    rows = list(qs.order_by("unit_id", "taken_at", "id").values_list(
+        "unit_id", "kind", "position_id", "taken_at", "esr_ohm", "capacitance_uf", "pump_position_id",
+        "rail_measured_v", "rail_input_v", "rail_load_ma"))
+    days = np.array([(timezone.localdate(r[3]) - _EPOCH).days for r in rows], dtype=float)
+    return {"rows": rows, "days": days, "unit_id": np.array([r[0] for r in rows], dtype=np.int64)}
+
+
+def _reading_arrays(readings, caps, snap_at):
+    """The readings as FleetArrays fields: capacitor rows found by (unit, position)."""
+    rows, days = readings["rows"], readings["days"]
+    if not rows:
+        return {}
+    span = int(caps["position_id"].max()) + 1 if caps["position_id"].size else 1
+    cap_key = caps["unit_id"] * span + caps["position_id"]
+    order = np.argsort(cap_key, kind="stable")
+
+    def row_of(unit_ids, position_ids):
+        k = _index_of(cap_key[order], np.asarray(unit_ids, dtype=np.int64) * span + np.asarray(position_ids))
+        return np.where(k >= 0, order[np.maximum(k, 0)] if order.size else -1, -1).astype(np.int64)
+
+    def f(x):
+        return np.nan if x is None else float(x)
+
+    is_cap = np.array([r[1] == Reading.Kind.CAPACITOR for r in rows])
+    units = readings["unit_id"]
+    pos = np.array([(r[2] if r[1] == Reading.Kind.CAPACITOR else r[6]) or 0 for r in rows], dtype=np.int64)
+    cap_row = row_of(units, pos)
+    ok_c, ok_r = is_cap & (cap_row >= 0), ~is_cap & (cap_row >= 0)
+    snaps = snap_at(units, days)
+    return {
+        "reading_cap": cap_row[ok_c], "reading_day": days[ok_c], "reading_snap": snaps[ok_c],
+        "reading_esr_ohm": np.array([f(r[4]) for r in rows])[ok_c],
+        "reading_capacitance_f": np.array([f(r[5]) for r in rows])[ok_c] * 1e-6,
+        "rail_fly": cap_row[ok_r], "rail_day": days[ok_r], "rail_snap": snaps[ok_r],
+        "rail_measured_v": np.array([f(r[7]) for r in rows])[ok_r],
+        "rail_input_v": np.array([f(r[8]) for r in rows])[ok_r],
+        "rail_load_a": np.array([f(r[9]) for r in rows])[ok_r] / 1000.0,
+    }
 
 
 _EPOCH = dt.date(1970, 1, 1)

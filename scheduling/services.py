@@ -33,11 +33,13 @@ from .triage import ACTION_NAMES, LEAVE
 #: inputs carry, and halves what a nightly refresh writes.
 #: Each unit's blob starts with this tag; change it with the layout, so a blob
 #: written with another layout reads as empty until the next refresh.
-POSITION_LAYOUT = b"RP03"
+POSITION_LAYOUT = b"RP04"
 log = logging.getLogger(__name__)
 POSITION_DTYPE = np.dtype([
     ("capacitor_id", "<i8"), ("damage", "<f4"), ("esr_ohm", "<f4"), ("capacitance_f", "<f4"),
     ("threshold", "<f4"), ("reaches_day", "<f4"), ("action", "i1"), ("why", "i1"), ("rate_per_day", "<f4"),
+    # bench readings: the date of the reading the damage comes from (NaN: none), the rate factor
+    ("measured_day", "<f4"), ("rate_factor", "<f4"),
 ])
 
 
@@ -105,6 +107,18 @@ class ForecastRun:
             "damage_threshold": round(float(r.threshold[i]), 6),
             "reaches_threshold_on": None if np.isnan(reach) else day_to_date(reach).isoformat(),
             "action": ACTION_NAMES[int(r.action[i])],
+            **self._measured(i),
+        }
+
+    def _measured(self, i):
+        """The latest bench reading of the part (null when none)."""
+        found = self.result.readings
+        esr, cap, on = (np.nan, np.nan, np.nan) if found is None else (
+            found.measured_esr_ohm[i], found.measured_capacitance_f[i], found.measured_on_day[i])
+        return {
+            "measured_esr_ohm": None if np.isnan(esr) else round(float(esr), 6),
+            "measured_capacitance_f": None if np.isnan(cap) else float(f"{cap:.6g}"),
+            "measured_on": None if np.isnan(on) else day_to_date(on).isoformat(),
         }
 
     def urgency_order(self):
@@ -171,6 +185,8 @@ def _store(run):
     packed["action"] = r.action[order]
     packed["why"] = r.why[order]
     packed["rate_per_day"] = r.rate_per_day[order]
+    packed["measured_day"] = r.readings.measured_day[order]
+    packed["rate_factor"] = r.readings.rate_factor[order]
     blob = packed.tobytes()
     size = POSITION_DTYPE.itemsize
     bounds = zip((run._starts * size).tolist(), (run._ends * size).tolist())

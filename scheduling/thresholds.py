@@ -62,6 +62,23 @@ def _thresholds(fa, damage, rate, today_day):
     return np.clip(threshold, 0.0, DAMAGE_THRESHOLD_CAP)
 
 
+def pump_partner_rows(fa, fly, pump=None):
+    """Capacitor row of each flying part's partner (the same unit's row at the
+    partner position; -1 where none), found by a sorted (unit, position) key."""
+    if pump is None:
+        role = fa.pos_role[fa.position_index]
+        pump = np.flatnonzero((role == ROLE_CODES["pump_flying"]) | (role == ROLE_CODES["pump_reservoir"]))
+    if not pump.size:
+        return np.full(fly.size, -1, dtype=np.int64)
+    n_pos = max(int(fa.pos_id.size), 1)
+    keys = fa.unit_index[pump] * n_pos + fa.position_index[pump]
+    order = np.argsort(keys, kind="stable")
+    partner = fa.pos_partner[fa.position_index[fly]]
+    wanted = fa.unit_index[fly] * n_pos + np.maximum(partner, 0)
+    at = np.clip(np.searchsorted(keys[order], wanted), 0, keys.size - 1)
+    return np.where((partner >= 0) & (keys[order][at] == wanted), pump[order][at], -1)
+
+
 def _pump_thresholds(fa, damage, rate, threshold, role, today_day):
     """Thresholds of the two capacitors of each switched-capacitor inverter.
 
@@ -81,15 +98,7 @@ def _pump_thresholds(fa, damage, rate, threshold, role, today_day):
     fly = pump[role[pump] == ROLE_CODES["pump_flying"]]
     if not fly.size:
         return
-    # Each flying part's partner: the row of the same unit at the partner
-    # position, found by a sorted (unit, position) key.
-    n_pos = max(int(fa.pos_id.size), 1)
-    keys = fa.unit_index[pump] * n_pos + fa.position_index[pump]
-    order = np.argsort(keys, kind="stable")
-    partner = fa.pos_partner[fa.position_index[fly]]
-    wanted = fa.unit_index[fly] * n_pos + np.maximum(partner, 0)
-    at = np.clip(np.searchsorted(keys[order], wanted), 0, keys.size - 1)
-    res = np.where((partner >= 0) & (keys[order][at] == wanted), pump[order][at], -1)
+    res = pump_partner_rows(fa, fly, pump)
     names = ("pump_input_v", "pump_load_a", "pump_freq_hz", "pump_switch_ohm", "pump_min_rail_v")
     vin, load, f, rsw, vmin = (_circuit(fa, n, fly) for n in names)
     ok = (res >= 0) & ~np.isnan(vin) & ~np.isnan(load) & ~np.isnan(f) & ~np.isnan(vmin)

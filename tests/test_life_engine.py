@@ -72,7 +72,7 @@ def hire(unit, start, days, powered_hours, ambient_c):
     # Tests hire one unit many times; a unit the check-in held for recap is
     # cleared first, as the bench would after looking at it.
     Unit.objects.filter(pk=unit.pk, status=Unit.Status.HOLD).update(status=Unit.Status.AVAILABLE)
-    services.rental_check_out(unit_id=unit.pk, job_ref="T", out_at=start)
+    services.rental_check_out(unit_id=unit.pk, job_ref="T", out_at=start, override_reason="test hire")
     services.rental_check_in(unit_id=unit.pk, in_at=start + dt.timedelta(days=days), venue_ambient_c=ambient_c,
                              powered_hours=powered_hours)
 
@@ -317,7 +317,8 @@ def test_forecast_command_prints_json_per_unit(effects_model, store):
     assert keys <= set(data[0])
     assert {p["designator"] for p in data[0]["positions"]} == {"C1", "C2", "C31", "C32"}
     assert set(data[0]["positions"][0]) == {"designator", "role", "damage", "esr_ohm", "capacitance_f",
-                                            "damage_threshold", "reaches_threshold_on", "action"}
+                                            "damage_threshold", "reaches_threshold_on", "action",
+                                            "measured_esr_ohm", "measured_capacitance_f", "measured_on"}
     assert data[0]["act_by"] is None or data[0]["act_by"] >= "2026-12-01"
     assert {p["action"] for p in data[0]["positions"]} <= {"replace", "measure", "leave"}
 

@@ -172,7 +172,7 @@ def fleet(db):
 
 def _hire(unit, start, days, powered):
     Unit.objects.filter(pk=unit.pk, status=Unit.Status.HOLD).update(status=Unit.Status.AVAILABLE)
-    workflows.rental_check_out(unit_id=unit.pk, job_ref="J", out_at=start)
+    workflows.rental_check_out(unit_id=unit.pk, job_ref="J", out_at=start, override_reason="test hire")
     workflows.rental_check_in(unit_id=unit.pk, in_at=start + dt.timedelta(days=days), venue_ambient_c=30.0,
                               powered_hours=powered)
 
