@@ -13,9 +13,11 @@ from django.utils import timezone
 from scheduling.models import UnitForecast
 
 from . import selectors
+from .workflows import OVERRIDE_STATUSES
 from fleet.models import AMBIENT_MAX_C, AMBIENT_MIN_C, EARLIEST_DATE, Role, Unit
 
 FUTURE_SLACK = dt.timedelta(minutes=5)
+
 
 SCANNER_ATTRS = {
     "autocomplete": "off",
@@ -135,8 +137,10 @@ class CheckOutForm(DeskForm):
                               widget=forms.TextInput(attrs={"autocomplete": "off"}))
     expected_ambient_c = ambient_field("Expected venue ambient (°C)", initial=25)
     out_at = moment_field("Checked out at")
-    send_anyway = forms.BooleanField(
-        label="Send it out anyway: I have checked with the workshop.", required=False,
+    override_reason = forms.CharField(
+        label="Reason for sending it out against the forecast", required=False, max_length=500,
+        help_text="Recorded with your name and the time, and shown on the unit's page.",
+        widget=forms.TextInput(attrs={"autocomplete": "off", "class": "wide"}),
     )
 
     def __init__(self, *args, **kwargs):
@@ -149,26 +153,32 @@ class CheckOutForm(DeskForm):
 
     def clean(self):
         cleaned = super().clean()
-        if self.unit is not None:
-            forecast = selectors.forecast_for(self.unit.pk)
-            self.forecast = forecast
-            if forecast is None or cleaned.get("send_anyway"):
-                return cleaned
-            if forecast.status in (UnitForecast.Status.DUE, UnitForecast.Status.OVERDUE):
-                self.needs_confirmation = True
-                self.add_error(
-                    None,
-                    f"{self.unit.asset_tag} is {forecast.get_status_display().lower()} for a recap. "
-                    "It should stay in for the workshop; tick the box below only if the workshop agrees.",
-                )
-            elif forecast.status == UnitForecast.Status.INVALID:
-                self.needs_confirmation = True
-                self.add_error(
-                    None,
-                    f"{self.unit.asset_tag} cannot be forecast: "
-                    f"{'; '.join(forecast.reasons or []) or 'its figures are not usable'}. Check with the workshop; "
-                    "tick the box below only if the workshop agrees.",
-                )
+        if self.unit is None:
+            return cleaned
+        if self.unit.status == Unit.Status.OUT:
+            self.add_error(None, f"{self.unit.asset_tag} is already out; check it in first.")
+            return cleaned
+        if self.unit.status != Unit.Status.AVAILABLE:
+            # Held, on the bench or retired: no reason to ask for, it cannot go out.
+            why = f" ({self.unit.hold_reason})" if self.unit.status == Unit.Status.HOLD and self.unit.hold_reason else ""
+            self.add_error(None, f"{self.unit.asset_tag} is {self.unit.get_status_display().lower()}{why}, "
+                                 "not available for hire; the workshop must release it first.")
+            return cleaned
+        forecast = selectors.forecast_for(self.unit.pk)
+        self.forecast = forecast
+        if forecast is None or forecast.status not in OVERRIDE_STATUSES:
+            return cleaned
+        self.needs_confirmation = True
+        if not (cleaned.get("override_reason") or "").strip():
+            if forecast.status == UnitForecast.Status.INVALID:
+                message = (f"{self.unit.asset_tag} cannot be forecast: "
+                           f"{'; '.join(forecast.reasons or []) or 'its figures are not usable'}. Check with the "
+                           "workshop; to send it out anyway, give the reason (it is recorded with your name).")
+            else:
+                message = (f"{self.unit.asset_tag} is {forecast.get_status_display().lower()} for a recap and should "
+                           "stay in for the workshop. To send it out anyway, give the reason; it is recorded with "
+                           "your name.")
+            self.add_error("override_reason", message)
         return cleaned
 
 

@@ -9,7 +9,18 @@ from django.db.models import Case, Count, IntegerField, Prefetch, Q, When
 
 from scheduling.models import UnitForecast
 
-from fleet.models import GearModel, Location, Measurement, Rental, ReplacedPart, ServiceRecord, Unit, UnitCapacitor
+from fleet.models import (
+    CheckoutOverride,
+    GearModel,
+    Location,
+    Measurement,
+    Reading,
+    Rental,
+    ReplacedPart,
+    ServiceRecord,
+    Unit,
+    UnitCapacitor,
+)
 
 RENTAL_HISTORY_LENGTH = 20
 
@@ -188,3 +199,25 @@ def fleet_counts():
 
 def attention_count():
     return recap_list().count()
+
+
+READINGS_SHOWN = 100
+
+
+def unit_capacitors(unit):
+    """The unit's fitted capacitors with their positions, C2 before C10."""
+    from .bench import _designator_key
+
+    caps = list(UnitCapacitor.objects.filter(unit=unit).select_related("position", "unit"))
+    return sorted(caps, key=lambda c: _designator_key(c.position.designator))
+
+
+def unit_readings(unit, limit=READINGS_SHOWN):
+    """The unit's bench readings, latest first (one query)."""
+    return list(Reading.objects.filter(unit=unit).select_related("position", "pump_position", "taken_by")
+                .order_by("-taken_at", "-id")[:limit])
+
+
+def unit_overrides(unit):
+    """Check-outs against the forecast, latest first (one query)."""
+    return list(CheckoutOverride.objects.filter(unit=unit).select_related("rental", "decided_by"))

@@ -13,6 +13,11 @@ urlpatterns = [
     path("workshop/", views.workshop, name="workshop"),
     path("workshop/due-list.pdf", views.due_list, name="due_list_pdf"),
     path("workshop/parts-list.<str:fmt>", views.parts_list, name="parts_list"),
+    path("bench/<str:asset_tag>/", views.bench_unit, name="bench_unit"),
+    path("bench/<str:asset_tag>/intake/", views.bench_intake, name="bench_intake"),
+    path("bench/<str:asset_tag>/reading/", views.bench_reading, name="bench_reading"),
+    path("bench/<str:asset_tag>/recap/", views.bench_recap, name="bench_recap"),
+    path("bench/<str:asset_tag>/release/", views.bench_release, name="bench_release"),
     path("data/import/", views.csv_import, name="csv_import"),
     path("data/export/<slug:kind>.csv", views.csv_export, name="csv_export"),
 ]

@@ -52,6 +52,10 @@ def unit_refresh(*, unit_id):
     forecast_refresh(unit_ids=[unit_id])
 
 
+#: Forecasts a check-out may only go against with a recorded reason.
+OVERRIDE_STATUSES = (UnitForecast.Status.DUE, UnitForecast.Status.OVERDUE, UnitForecast.Status.INVALID)
+
+
 class OverrideNeeded(ServiceError):
     """The forecast says due or overdue: the check-out needs a recorded reason."""
 
@@ -60,19 +64,21 @@ class OverrideNeeded(ServiceError):
 def rental_check_out(*, unit_id, job_ref, out_at=None, expected_ambient_c=25.0, user=None, override_reason=""):
     """Check a unit out on a hire (see ``fleet.services.rental_open``).
 
-    A unit whose stored forecast is due or overdue goes out only with
-    ``override_reason``: who, when and why are stored with what the forecast
-    said (``OverrideNeeded`` otherwise).  A reason given for a unit the
-    forecast does not stop is not recorded.
+    A unit whose stored forecast is due or overdue, or cannot be worked out,
+    goes out only with ``override_reason``: who, when and why are stored with
+    what the forecast said (``OverrideNeeded`` otherwise).  A reason given
+    for a unit the forecast does not stop is not recorded.
     """
     forecast = UnitForecast.objects.filter(unit_id=unit_id).first()
     override = None
-    if forecast is not None and forecast.status in (UnitForecast.Status.DUE, UnitForecast.Status.OVERDUE):
+    if forecast is not None and forecast.status in OVERRIDE_STATUSES:
         unit = Unit.objects.get(pk=unit_id)
         if unit.status == Unit.Status.AVAILABLE and not (override_reason or "").strip():
+            said = ("cannot be forecast" if forecast.status == UnitForecast.Status.INVALID
+                    else f"is {forecast.get_status_display().lower()} for a recap")
             raise OverrideNeeded(
-                f"{unit.asset_tag} is {forecast.get_status_display().lower()} for a recap; it should stay in for "
-                "the workshop.  To send it out anyway, give the reason (it is recorded with your name).")
+                f"{unit.asset_tag} {said}; it should stay in for the workshop.  To send it out anyway, give the "
+                "reason (it is recorded with your name).")
         override = {"reason": override_reason, "forecast_status": forecast.status,
                     "forecast_due_date": forecast.due_date, "forecast_risk": forecast.risk}
     return register.rental_open(unit_id=unit_id, job_ref=job_ref, out_at=out_at,

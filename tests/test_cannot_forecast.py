@@ -122,7 +122,8 @@ def test_the_pages_show_it_and_the_desk_is_told_to_ask_the_workshop(client, two_
     client.force_login(users.desk)
     page = client.get(reverse("unit_detail", args=["NMB-0002"])).content.decode()
     assert "Check with the workshop" in page and "Its forecast cannot be worked out: ask the workshop" in page
-    rental_check_out(unit_id=two_units.bad.pk, job_ref="JOB-1", out_at=timezone.now() - dt.timedelta(days=1))
+    rental_check_out(unit_id=two_units.bad.pk, job_ref="JOB-1", out_at=timezone.now() - dt.timedelta(days=1),
+                     override_reason="workshop checked it")
     response = client.post(reverse("check_in"), {"asset_tag": "NMB-0002", "venue_ambient_c": "24",
                                                  "powered_hours": "5", "reported_faults": ""})
     assert response.status_code == 302  # the check-in is saved: the unit can come back in
@@ -138,7 +139,8 @@ def test_the_pages_show_it_and_the_desk_is_told_to_ask_the_workshop(client, two_
     assert response.status_code == 200
     assert "NMB-0002 cannot be forecast: C1 (supply reservoir): 1 pF" in response.content.decode()
     response = client.post(reverse("check_out"), {"asset_tag": "NMB-0002", "job_ref": "JOB-2",
-                                                  "expected_ambient_c": "24", "send_anyway": "on"})
+                                                  "expected_ambient_c": "24",
+                                                  "override_reason": "The workshop checked its supply by hand"})
     assert response.status_code == 302
 
 

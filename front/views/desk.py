@@ -41,8 +41,10 @@ def desk_scan(request):
         return redirect(f"{reverse('check_in')}?tag={unit.asset_tag}")
     if unit.status == Unit.Status.AVAILABLE:
         return redirect(f"{reverse('check_out')}?tag={unit.asset_tag}")
+    why = f" ({unit.hold_reason})" if unit.status == Unit.Status.HOLD and unit.hold_reason else ""
     messages.warning(
-        request, f"{unit.asset_tag} is {unit.get_status_display().lower()}; it cannot go out until that is cleared.",
+        request, f"{unit.asset_tag} is {unit.get_status_display().lower()}{why}; it cannot go out until the workshop "
+                 "releases it.",
     )
     return redirect("unit_detail", asset_tag=unit.asset_tag)
 
@@ -61,6 +63,7 @@ def check_out(request):
                     out_at=data["out_at"],
                     expected_ambient_c=data["expected_ambient_c"],
                     user=request.user,
+                    override_reason=data["override_reason"] if form.needs_confirmation else "",
                 )
             except (ServiceError, ValidationError) as exc:
                 _service_error(form, exc)

@@ -13,10 +13,12 @@ from scheduling.services import unit_trajectory
 from scheduling.reasons import ROLE_WORDS
 
 from .. import selectors
+from ..history import unit_history
 from ..forms import UnitFilterForm
 from . import display, worklist
 from .access import not_found, page, staff_required
 from .charts import life_chart
+from .readings import reading_rows
 
 UNITS_PER_PAGE = 50
 
@@ -66,6 +68,7 @@ def unit_detail(request, asset_tag):
         "rental_limit": selectors.RENTAL_HISTORY_LENGTH,
         "service_records": data["service_records"],
         "open_rental": next((r for r in data["rentals"] if r.in_at is None), None),
+        "overrides": selectors.unit_overrides(unit),
     }
     if not technician:
         ctx["forecast"] = display.forecast_display(stored, today=today)
@@ -85,6 +88,8 @@ def unit_detail(request, asset_tag):
         "todo": display.todo_line(rows),
         "chart": _chart(stored, data["capacitors"], policy),
         "policy": policy,
+        "readings": reading_rows(selectors.unit_readings(unit)),
+        "history": unit_history(unit),
     })
     return page(request, "front/unit_detail.html", ctx)
 

@@ -97,17 +97,36 @@ def test_a_held_unit_is_refused(client, users, fleet):
     assert not Rental.objects.exists()
 
 
-def test_a_unit_due_for_recap_needs_the_send_anyway_box(client, users, fleet):
+def test_a_unit_due_for_recap_goes_out_only_with_a_recorded_reason(client, users, fleet):
+    from fleet.models import CheckoutOverride
+
     UnitForecast.objects.create(unit=fleet.unit, computed_at=timezone.now(), status="overdue", risk=0.5,
                                 horizon_days=90, max_damage_ratio=1.4, reasons=["C1 worn"], positions=b"")
     client.force_login(users.desk)
     response = post(client)
     assert response.status_code == 200
-    assert "overdue for a recap" in " ".join(response.context["form"].non_field_errors())
-    assert 'name="send_anyway"' in response.content.decode()
+    assert "overdue for a recap" in " ".join(response.context["form"].errors["override_reason"])
+    assert 'name="override_reason"' in response.content.decode()
     assert not Rental.objects.exists()
-    assert post(client, send_anyway="on").status_code == 302
-    assert Rental.objects.count() == 1
+    assert post(client, override_reason="Workshop measured the rails this morning").status_code == 302
+    override = CheckoutOverride.objects.get()
+    assert (override.decided_by, override.forecast_status) == (users.desk, "overdue")
+    assert override.reason == "Workshop measured the rails this morning"
+    # the unit page shows who, when and why
+    page = client.get(f"/units/{fleet.unit.asset_tag}/").content.decode()
+    assert "Workshop measured the rails this morning" in page
+
+
+def test_a_held_unit_is_refused_at_once_without_asking_for_a_reason(client, users, fleet):
+    Unit.objects.filter(pk=fleet.unit.pk).update(status=Unit.Status.HOLD, hold_reason="Hum on every channel")
+    UnitForecast.objects.create(unit=fleet.unit, computed_at=timezone.now(), status="overdue", risk=0.5,
+                                horizon_days=90, max_damage_ratio=1.4, reasons=["C1 worn"], positions=b"")
+    client.force_login(users.desk)
+    response = post(client, override_reason="Please")
+    errors = " ".join(response.context["form"].non_field_errors())
+    assert "held (Hum on every channel)" in errors and "workshop must release it" in errors
+    assert 'name="override_reason"' not in response.content.decode()
+    assert not Rental.objects.exists()
 
 
 def test_a_tag_from_the_start_page_is_filled_in_and_the_cursor_moves_on(client, users, fleet):

@@ -28,7 +28,7 @@ def test_a_held_unit_goes_to_its_page_with_a_warning(client, users, fleet):
     client.force_login(users.desk)
     response = client.get(URL, {"tag": "NMB-0001"}, follow=True)
     assert response.redirect_chain[-1][0] == reverse("unit_detail", args=["NMB-0001"])
-    assert "NMB-0001 is held; it cannot go out until that is cleared." in response.content.decode()
+    assert "NMB-0001 is held; it cannot go out until the workshop releases it." in response.content.decode()
 
 
 def test_an_unknown_tag_returns_to_the_start_page_with_a_message(client, users, fleet):
