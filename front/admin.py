@@ -7,10 +7,12 @@ that changes what a unit's exposure is worked out from (its dates, prior use)
 rebuilds its history and forecast, and a change of a model's internal rise
 marks its units changed for the life engine's next refresh.  Hires and fitted
 capacitors are shown read-only: they change only through the rental desk and
-recorded services.
+recorded services.  Units, hires, service records and the policy keep their
+change history (django-simple-history), shown by each page's History button.
 """
 
 from django.contrib import admin
+from simple_history.admin import SimpleHistoryAdmin
 from django.urls import reverse
 from django.utils.html import format_html
 
@@ -197,14 +199,14 @@ class UnitCapacitorInline(admin.TabularInline):
 
 
 @admin.register(Unit)
-class UnitAdmin(admin.ModelAdmin):
+class UnitAdmin(SimpleHistoryAdmin):
     list_display = ("asset_tag", "gear_model", "serial", "status", "home_location", "year_made", "hour_meter_h")
     list_filter = ("status", "gear_model", "home_location")
     search_fields = ("asset_tag", "serial")
     list_select_related = ("gear_model", "home_location")
     fieldsets = (
         (None, {"fields": ("asset_tag", "serial", "gear_model", "year_made", "joined_on", "home_location",
-                           "status", "hour_meter_h")}),
+                           "status", "hold_reason", "hour_meter_h")}),
         ("Use before it joined the fleet", {"fields": ("prior_powered_h_per_year", "prior_ambient_c",
                                                         "prior_storage_c")}),
         (None, {"fields": ("notes",)}),
@@ -237,7 +239,7 @@ class UnitAdmin(admin.ModelAdmin):
 # --- hires -----------------------------------------------------------------------
 
 @admin.register(Rental)
-class RentalAdmin(admin.ModelAdmin):
+class RentalAdmin(SimpleHistoryAdmin):
     """Hires are written by the rental desk; here they are for looking up."""
 
     list_display = ("unit", "job_ref", "out_at", "in_at", "powered_hours", "hours_source", "venue_ambient_c",
@@ -303,7 +305,7 @@ class MeasurementInline(admin.TabularInline):
 
 
 @admin.register(ServiceRecord)
-class ServiceRecordAdmin(admin.ModelAdmin):
+class ServiceRecordAdmin(SimpleHistoryAdmin):
     list_display = ("unit", "kind", "performed_on", "who", "signed_off_by", "signed_off_at")
     list_filter = ("kind", "performed_on", ("signed_off_by", admin.EmptyFieldListFilter))
     search_fields = ("unit__asset_tag", "technician_name", "notes")
@@ -319,7 +321,9 @@ class ServiceRecordAdmin(admin.ModelAdmin):
 
 
 @admin.register(MaintenancePolicy)
-class MaintenancePolicyAdmin(admin.ModelAdmin):
+class MaintenancePolicyAdmin(SimpleHistoryAdmin):
+    """Changes to the policy are kept with who made them (the History button)."""
+
     list_display = ("name", "active", "risk_limit", "horizon_days", "damage_limit", "calendar_age_years",
                     "storage_reform_months", "watch_days")
     list_filter = ("active",)

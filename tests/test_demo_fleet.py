@@ -9,11 +9,12 @@ from django.core.management import call_command
 from django.db import transaction
 from django.db.models import Count, Q
 from django.test import TestCase
+from django.utils import timezone
 
 from fixtures import demo_fleet
 from fixtures.demo_fleet import DEMO_USERS, GEAR_MODELS, MAKERS, DemoFleetExists, build_demo_fleet
 from fleet.models import (
-    GearModel, Location, MaintenancePolicy, Measurement, Position, Rental, Role, ServiceRecord, Unit,
+    BenchVisit, GearModel, Location, MaintenancePolicy, Measurement, Position, Reading, Rental, Role, ServiceRecord, Unit,
     UnitCapacitor,
 )
 from scheduling.models import HistogramSnapshot, ThermalHistory
@@ -175,11 +176,28 @@ class DemoFleetTests(TestCase):
             self.assertFalse(record.unit.rentals.filter(Q(out_at__lte=noon), Q(in_at__gte=noon) | Q(in_at=None))
                              .exists())
 
+    def test_the_unit_on_the_bench_has_readings_predicted_against_measured(self):
+        unit = Unit.objects.get(status=Unit.Status.BENCH)
+        self.assertEqual(unit.bench_visits.get().closed_at, None)
+        readings = list(unit.readings.all())
+        self.assertEqual(len(readings), 4)
+        esr = [r for r in readings if r.esr_ohm is not None]
+        self.assertTrue(esr and all(r.predicted_esr_ohm for r in esr))
+        # the readings moved the stored forecast: its blob dates C1's damage from the reading
+        from scheduling.services import stored_positions
+
+        blob = stored_positions(unit.forecast)
+        c1 = unit.capacitors.get(position__designator="C1")
+        row = blob[blob["capacitor_id"] == c1.pk][0]
+        self.assertFalse(row["measured_day"] != row["measured_day"])  # not NaN
+
     def test_every_unit_has_a_thermal_history_to_today(self):
         self.assertEqual(ThermalHistory.objects.count(), Unit.objects.count())
-        self.assertEqual(HistogramSnapshot.objects.count(),
-                         UnitCapacitor.objects.filter(is_original=False)
-                         .values("unit_id", "installed_on").distinct().count())
+        # one snapshot per (unit, date) on which parts went in or were read at the bench
+        wanted = {(u, d) for u, d in UnitCapacitor.objects.filter(is_original=False)
+                  .values_list("unit_id", "installed_on")}
+        wanted |= {(r.unit_id, timezone.localdate(r.taken_at)) for r in Reading.objects.filter(part_removed=False)}
+        self.assertEqual(set(HistogramSnapshot.objects.values_list("unit_id", "taken_on")), wanted)
         out = set(Unit.objects.filter(status=Unit.Status.OUT).values_list("pk", flat=True))
         for history in ThermalHistory.objects.all():
             if history.unit_id not in out:
@@ -205,8 +223,10 @@ class DemoFleetTests(TestCase):
 
         first = signature()
         with transaction.atomic():
+            Reading.objects.all().delete()
             Rental.objects.all().delete()
             ServiceRecord.objects.all().delete()
+            BenchVisit.objects.all().delete()
             UnitCapacitor.objects.all().delete()
             Unit.objects.all().delete()
             Position.objects.all().delete()
