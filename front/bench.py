@@ -34,6 +34,7 @@ class ForecastGlance:
     status: str
     due_date: object
     risk: float
+    horizon_days: int
     positions: dict  # designator -> {"damage", "esr_ohm", "capacitance_uf", "threshold"}
 
 
@@ -49,7 +50,7 @@ def _glance(run):
         }
     due = r.due_day[0]
     return ForecastGlance(status=r.status[0], due_date=None if np.isnan(due) else run.unit_dict(0, False)["due_date"],
-                          risk=float(r.risk[0]), positions=positions)
+                          risk=float(r.risk[0]), horizon_days=int(run.policy.horizon_days), positions=positions)
 
 
 @transaction.atomic

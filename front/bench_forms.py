@@ -127,7 +127,7 @@ class RecapForm(PlainForm):
                     self.fields[name].initial = f"{initial:g}" if initial else ""
                 else:
                     self.fields[name] = number(f"{des} {label}", required=True)
-                    self.fields[name].initial = initial
+                    self.fields[name].initial = f"{initial:g}" if initial is not None else None
                 names.append(name)
             self.fields[f"{des}__removed_esr_ohm"] = number(f"{des} removed part's ESR (Ω)")
             self.fields[f"{des}__removed_capacitance_uf"] = capacitance(f"{des} removed part's capacitance")

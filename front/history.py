@@ -4,6 +4,11 @@ readings (django-simple-history keeps the versions; the policy's history is
 in the admin).  One query per history table, whatever the unit's age.
 """
 
+import datetime as dt
+
+from django.contrib.auth import get_user_model
+from django.utils import timezone
+
 from fleet.models import BenchVisit, Reading, Rental, ServiceRecord, Unit, UnitCapacitor
 
 #: Versions read per table, and changes shown.
@@ -30,14 +35,41 @@ def _label(record, model):
 
 
 def _fields(model):
-    return [f for f in model._meta.fields if f.attname not in QUIET and f.name not in QUIET]
+    """The fields worth a line: not bookkeeping, not who did it (the trail names who)."""
+    user_model = get_user_model()
+    return [f for f in model._meta.fields if f.attname not in QUIET and f.name not in QUIET
+            and getattr(f, "related_model", None) is not user_model]
 
 
 def _words(value):
     if value in (None, ""):
         return "—"
+    if isinstance(value, dt.datetime):
+        return f"{timezone.localtime(value):%d %b %Y %H:%M}"
+    if isinstance(value, dt.date):
+        return f"{value:%d %b %Y}"
+    if isinstance(value, float):
+        return f"{value:g}"
     text = str(value)
     return text if len(text) <= 60 else text[:57] + "…"
+
+
+def _created(v, model, designators):
+    """What a new record says, in a few words."""
+    if model is UnitCapacitor:
+        return (f"fitted: {v.capacitance_uf:g} µF {v.rated_voltage_v:g} V {v.rated_temp_c:g} °C "
+                f"{v.rated_life_h:g} h, on {v.installed_on:%d %b %Y}")
+    if model is Reading:
+        if v.kind == Reading.Kind.RAIL:
+            return f"{v.rail_name} rail {v.rail_measured_v:+g} V" + (f" at {v.rail_load_ma:g} mA"
+                                                                    if v.rail_load_ma is not None else "")
+        bits = [f"ESR {v.esr_ohm:g} Ω" if v.esr_ohm is not None else "",
+                f"{v.capacitance_uf:g} µF" if v.capacitance_uf is not None else "",
+                f"leakage {v.leakage_ua:g} µA" if v.leakage_ua is not None else ""]
+        return f"{designators.get(v.position_id, '')}: " + ", ".join(b for b in bits if b)
+    if model is BenchVisit:
+        return "taken to the bench" + (f": {_words(v.intake_notes)}" if v.intake_notes else "")
+    return "created"
 
 
 def unit_history(unit, limit=SHOWN):
@@ -62,11 +94,11 @@ def unit_history(unit, limit=SHOWN):
             before = last.get(v.id)
             last[v.id] = v
             if v.history_type == "+":
-                change = "created"
+                change = _created(v, model, designators)
             elif v.history_type == "-":
                 change = "deleted"
             elif before is None:
-                change = "changed"
+                change = _created(v, model, designators) if model is UnitCapacitor else "changed"
             else:
                 diffs = [f"{f.verbose_name}: {_words(getattr(before, f.attname))} → {_words(getattr(v, f.attname))}"
                          for f in fields if getattr(before, f.attname) != getattr(v, f.attname)]

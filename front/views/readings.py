@@ -72,6 +72,6 @@ def reading_summary(outcome):
         parts.append("damage " + ", ".join(f"{d} {a:.2f} → {b:.2f}" for d, (a, b) in moved.items()))
     b, a = outcome.before, outcome.after
     if b is not None and a is not None:
-        parts.append(f"unit {b.status} → {a.status}, risk {b.risk:.0%} → {a.risk:.0%}"
-                     + (f", due {a.due_date}" if a.due_date else ""))
+        parts.append(f"unit {b.status} → {a.status}, chance of a fault within {a.horizon_days} days "
+                     f"{b.risk:.0%} → {a.risk:.0%}")
     return "; ".join(parts) + "."

@@ -148,6 +148,8 @@ def workshop_counts():
 def why_held(unit):
     """Why a unit is held or on the bench, in words the desk can read."""
     forecast = getattr(unit, "forecast", None) if _has_forecast(unit) else None
+    if unit.hold_reason and unit.status == "hold":
+        return unit.hold_reason
     if unit.last_faults:
         return f"Fault reported on return: {unit.last_faults}"
     if forecast is not None and forecast.status in (UnitForecast.Status.DUE, UnitForecast.Status.OVERDUE):

@@ -74,7 +74,7 @@ def test_a_recap_from_the_page_with_suggested_parts(client, users, unit):
     rows = response.context["rows"]
     assert [r["cap"].position.designator for r in rows] == ["C4"]
     initial = {f.name: f.value() for f in rows[0]["fields"]}
-    assert initial["C4__rated_temp_c"] == 105 and initial["C4__diameter_mm"] == 5
+    assert initial["C4__rated_temp_c"] == "105" and initial["C4__diameter_mm"] == "5"
     data = {"choice": "pick", "pick": ["C4", "C5"], "signed_off": "on", "notes": "Pump pair"}
     for d in ("C4", "C5"):
         form_fields = client.get(url("bench_recap"), {"choice": "pick", "pick": ["C4", "C5"]}).context["form"]
