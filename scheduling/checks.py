@@ -43,6 +43,12 @@ CAPACITOR_FIELDS = (
     "cap_id", "unit_index", "position_index", "capacitance_f", "rated_voltage_v", "rated_temp_c", "rated_life_h",
     "esr0_ohm", "diameter_mm", "length_mm", "installed_day", "is_original", "baseline_index",
 )
+#: Bench readings (``scheduling.readings``): one entry per reading, the first
+#: of each tuple the capacitor row it is about (renumbered with the subset).
+READING_FIELDS = (
+    ("reading_cap", "reading_day", "reading_snap", "reading_esr_ohm", "reading_capacitance_f"),
+    ("rail_fly", "rail_day", "rail_snap", "rail_measured_v", "rail_input_v", "rail_load_a"),
+)
 SHARED_FIELDS = (
     "model_id", "model_rise_k", "model_hours_per_day", "pos_id", "pos_designator", "pos_role", "pos_ripple_a",
     "pos_partner", "pos_circuit", "snap_powered", "snap_unpowered",
@@ -97,6 +103,16 @@ def fleet_subset(fa, rows):
         elif f.name in CAPACITOR_FIELDS and value is not None:
             changes[f.name] = value[keep]
     changes["unit_index"] = new_index[fa.unit_index[keep]]
+    new_cap = np.full(fa.n_caps, -1, dtype=np.int64)
+    new_cap[keep] = np.arange(int(keep.sum()))
+    for names in READING_FIELDS:
+        about = getattr(fa, names[0])
+        if about is None:
+            continue
+        kept = new_cap[about] >= 0
+        for name in names[1:]:
+            changes[name] = getattr(fa, name)[kept]
+        changes[names[0]] = new_cap[about[kept]]
     return dataclasses.replace(fa, **changes)
 
 
