@@ -299,3 +299,22 @@ def test_the_audit_trail_names_who_changed_the_unit_and_its_parts(unit, tech):
     assert unit_changes.filter(status="bench").exists()
     cap = unit.capacitors.get(position__designator="C4")
     assert cap.history.filter(history_user=tech, is_original=False).exists()
+
+
+def test_readings_stay_with_their_unit_when_another_unit_cannot_be_forecast(unit, tech):
+    from fleet.models import UnitCapacitor
+
+    other = workflows.unit_create(asset_tag="EC-0002", gear_model=unit.gear_model, year_made=2012,
+                                  joined_on=dt.date(2020, 3, 1), home_location=unit.home_location)
+    on_bench(other, tech)
+    p = predicted(other, "C1")
+    bench.bench_reading_record(unit_id=other.pk, designator="C1", esr_ohm=2 * p["esr_ohm"], user=tech)
+    # A part no one makes (1 pF in a 6.3 mm can) sets the first unit aside; the second's capacitor
+    # rows move up, and its reading must move with them.
+    UnitCapacitor.objects.filter(unit=unit, position__designator="C2").update(capacitance_uf=1e-6)
+    run = forecast_refresh()
+    assert [run.fleet.asset_tag[u] for u in range(run.fleet.n_units)] == ["EC-0002"]
+    assert [u.asset_tag for u in run.unforecastable] == ["EC-0001"]
+    c1 = next(q for q in run.unit_dict(0)["positions"] if q["designator"] == "C1")
+    assert c1["damage"] == pytest.approx(p["damage"] + 1.0, rel=1e-5)
+    assert c1["measured_esr_ohm"] == pytest.approx(2 * p["esr_ohm"], rel=1e-6)
