@@ -206,7 +206,7 @@ def rental_close(*, unit_id, in_at=None, venue_ambient_c, powered_hours=None, me
     if meter_reading_h is not None:
         unit.hour_meter_h = meter_reading_h
     unit.status = Unit.Status.HOLD if rental.reported_faults else Unit.Status.AVAILABLE
-    unit.hold_reason = f"Faults reported on return: {rental.reported_faults}"[:300] if rental.reported_faults else ""
+    unit.hold_reason = f"Fault reported on return: {rental.reported_faults}"[:300] if rental.reported_faults else ""
     unit.records_version = F("records_version") + 1
     _by(unit, user).save(update_fields=["status", "hour_meter_h", "records_version", "hold_reason"])
     unit.refresh_from_db(fields=["records_version"])
