@@ -14,7 +14,7 @@ change history (django-simple-history), shown by each page's History button.
 from django.contrib import admin
 from simple_history.admin import SimpleHistoryAdmin
 from django.urls import reverse
-from django.utils.html import format_html
+from django.utils.html import format_html, format_html_join
 
 from fleet.models import (
     GearModel,
@@ -30,7 +30,7 @@ from fleet.models import (
     UnitCapacitor,
 )
 from fleet.services import unit_populate, units_mark_changed
-from fleet.values import format_capacitance
+from reports.formatting import capacitance as format_capacitance
 
 from .workflows import unit_refresh
 
@@ -170,34 +170,6 @@ class PositionAdmin(admin.ModelAdmin):
 
 # --- units -----------------------------------------------------------------------
 
-class UnitCapacitorInline(admin.TabularInline):
-    """The parts fitted now; read-only (a recap is recorded as a service)."""
-
-    model = UnitCapacitor
-    fields = ("designator", "capacitance", *RATING_COLUMNS[1:5], "installed_on", "is_original")
-    readonly_fields = fields
-    extra = 0
-    can_delete = False
-    ordering = ("position__designator",)
-
-    def get_queryset(self, request):
-        return super().get_queryset(request).select_related("position")
-
-    @admin.display(description="designator")
-    def designator(self, obj):
-        return obj.position.designator
-
-    @admin.display(description="capacitance")
-    def capacitance(self, obj):
-        return format_capacitance(obj.capacitance_uf)
-
-    def has_add_permission(self, request, obj=None):
-        return False
-
-    def has_change_permission(self, request, obj=None):
-        return False
-
-
 @admin.register(Unit)
 class UnitAdmin(SimpleHistoryAdmin):
     list_display = ("asset_tag", "gear_model", "serial", "status", "home_location", "year_made", "hour_meter_h")
@@ -210,17 +182,32 @@ class UnitAdmin(SimpleHistoryAdmin):
         ("Use before it joined the fleet", {"fields": ("prior_powered_h_per_year", "prior_ambient_c",
                                                         "prior_storage_c")}),
         (None, {"fields": ("notes",)}),
+        ("Fitted capacitors", {"fields": ("fitted_parts",)}),
     )
-    inlines = [UnitCapacitorInline]
+    readonly_fields = ("fitted_parts",)
 
     def get_readonly_fields(self, request, obj=None):
         # The model decides the capacitor population; changing it afterwards
         # would leave the fitted parts of the old model behind.
-        return ("gear_model",) if obj is not None else ()
+        return ("gear_model", "fitted_parts") if obj is not None else ("fitted_parts",)
 
-    def get_inline_instances(self, request, obj=None):
-        # A new unit gets its capacitors from its model when it is saved.
-        return super().get_inline_instances(request, obj) if obj is not None else []
+    @admin.display(description="parts fitted now")
+    def fitted_parts(self, obj):
+        """The parts fitted now, read-only (a recap is recorded as a service):
+        one plain table, where an inline of forms took a fifth of a second
+        for a unit of fifty parts."""
+        if obj is None or obj.pk is None:
+            return "A new unit gets its model's parts when it is saved."
+        rows = (UnitCapacitor.objects.filter(unit=obj).select_related("position")
+                .order_by("position__designator"))
+        body = format_html_join(
+            "", "<tr><td>{}</td><td>{}</td><td>{} V</td><td>{} °C</td><td>{} h</td><td>{}</td><td>{}</td></tr>",
+            ((c.position.designator, format_capacitance(c.capacitance_uf), f"{c.rated_voltage_v:g}",
+              f"{c.rated_temp_c:g}", f"{c.rated_life_h:g}", c.installed_on, "original" if c.is_original else "replaced")
+             for c in rows))
+        return format_html('<table class="fitted"><thead><tr><th>designator</th><th>capacitance</th><th>rated '
+                           'voltage</th><th>rated temperature</th><th>endurance</th><th>installed</th><th></th></tr>'
+                           '</thead><tbody>{}</tbody></table>', body)
 
     #: Fields whose change rewrites the unit's past exposure.
     EXPOSURE_FIELDS = ("joined_on", "prior_powered_h_per_year", "prior_ambient_c", "prior_storage_c")
@@ -246,12 +233,25 @@ class RentalAdmin(SimpleHistoryAdmin):
                     "has_faults")
     list_filter = ("hours_source", ("in_at", admin.EmptyFieldListFilter), "unit__gear_model",
                    "unit__home_location")
-    search_fields = ("unit__asset_tag", "job_ref")
+    search_fields = ("unit__asset_tag", "job_ref")  # see get_search_results
+    search_help_text = "An asset tag, or the start of a job reference (as written, e.g. J2611-002)."
     # No date hierarchy: over hundreds of thousands of hires its year list
     # alone took seconds.  Newest first, by the index on out_at.
     ordering = ("-out_at",)
     show_full_result_count = False
     list_select_related = ("unit",)
+
+    def get_search_results(self, request, queryset, search_term):
+        """A unit's asset tag (exactly, any case) or the start of a job
+        reference: both found by an index, where a substring search walked
+        every hire (seconds at 10,000 units)."""
+        term = search_term.strip()
+        if not term:
+            return queryset, False
+        unit = Unit.objects.filter(asset_tag=term.upper()).values_list("pk", flat=True).first()
+        if unit is not None:
+            return queryset.filter(unit_id=unit), False
+        return queryset.filter(job_ref__gte=term, job_ref__lt=term + "\U0010ffff"), False
 
     @admin.display(boolean=True, description="faults")
     def has_faults(self, obj):

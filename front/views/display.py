@@ -72,8 +72,14 @@ def _circuit_figures(position):
                 max_corner_hz=position.coupling_max_corner_hz)
 
 
+def position_why(action, why, cap, share, today, calendar_age_years):
+    """The reason of a fitted part's action, without its verb: "negative rail below 3.25 V …"."""
+    return _why(action, why, cap.position.role, share, cap, today, calendar_age_years)
+
+
 def _why(action, why, role, share, cap, today, calendar_age_years):
     """The reason of an action, without its verb: "negative rail below 3.25 V …"."""
+    share = None if share is None or share == float("inf") else share
     line = action_words(action, why, role, share=share, age_years=fmt.age_years(cap.installed_on, today),
                         age_limit_years=calendar_age_years, **_circuit_figures(cap.position))
     why = line.split(": ", 1)[1] if ": " in line else ""
@@ -182,9 +188,11 @@ def action_counts(rows):
     return {"replace": counts[REPLACE], "measure": counts[MEASURE], "leave": counts[LEAVE]}
 
 
-def todo_line(rows, *, shown=3):
+def todo_line(rows, *, shown=3, why_of=None):
     """What to do with a unit, in one line: "Replace C4, C5 and 23 more,
-    measure 3: C4 negative rail below 3.25 V at today's predicted ESR"."""
+    measure 3: C4 negative rail below 3.25 V".  ``rows`` need designator,
+    role, action and share; the reason is the first row's ``why``, or
+    ``why_of(row)`` for it when given (only the first one is worded)."""
     ordered = [r for r in by_action(rows) if r["action"] in (REPLACE, MEASURE)]
     if not ordered:
         return ""
@@ -201,10 +209,10 @@ def todo_line(rows, *, shown=3):
         else:
             parts.append(f"{verb.capitalize()} {listed}" + (f" and {more} more" if more > 0 else ""))
     first = ordered[0]
-    # the verb already says to take a reading
-    short = first.get("why", "").split("; read its", 1)[0].split(" at today's predicted", 1)[0]
-    why = f": {first['designator']} {short}" if short else ""
-    return ", ".join(parts) + why
+    why = why_of(first) if why_of is not None else first.get("why", "")
+    # the verb already says to take a reading; the unit page has the rest
+    short = (why or "").split("; read its", 1)[0].split(" at today's predicted", 1)[0]
+    return ", ".join(parts) + (f": {first['designator']} {short}" if short else "")
 
 
 # --- safety -----------------------------------------------------------------------------------

@@ -6,7 +6,10 @@ Each function runs a fixed number of queries whatever the size of the fleet,
 and no list returns more than one page of rows.
 """
 
+import functools
 from collections import defaultdict
+
+import numpy as np
 
 from django.db.models import F, OuterRef, Subquery
 
@@ -19,7 +22,7 @@ from scheduling.services import stored_positions
 from scheduling.thresholds import ROLE_CODES
 from scheduling.triage import LEAVE, REPLACE
 
-from .display import designator_key, position_plan, safety_line, todo_line
+from .display import by_action, designator_key, position_why, safety_line, todo_line
 
 TRIAGE_PER_PAGE = 25
 #: Units held or on the bench shown at once (the rest are counted and linked).
@@ -61,28 +64,44 @@ def needing_work_count():
     return UnitForecast.objects.filter(priority__isnull=False).exclude(unit__status=Unit.Status.RETIRED).count()
 
 
-def _acted_capacitor_ids(forecasts):
-    """Ids of the capacitors to replace or measure, from the stored forecasts."""
-    ids = []
+def plans(forecasts, *, policy, today):
+    """{unit id: (what to do in one line, parts to replace, parts to measure)}
+    for a page of forecasts, from their stored actions: one light query for
+    the designators and roles of the positions to act on, one for the first
+    position of each unit (whose reason is worded)."""
+    acted = {}
     for f in forecasts:
         rec = stored_positions(f)
-        ids.extend(int(i) for i in rec["capacitor_id"][rec["action"] != LEAVE])
-    return ids
-
-
-def plans(forecasts, *, policy, today):
-    """{unit id: the rows of its positions to replace or measure} for a page
-    of forecasts: one query for those capacitors and their positions."""
-    caps = defaultdict(list)
-    ids = _acted_capacitor_ids(forecasts)
+        rec = rec[rec["action"] != LEAVE]
+        limit = policy.damage_limit * rec["threshold"].astype(float)
+        share = np.divide(rec["damage"].astype(float), limit, out=np.full(rec.size, np.inf), where=limit > 0)
+        acted[f.unit_id] = [{"id": int(i), "action": int(a), "why_code": int(w), "share": float(x)}
+                            for i, a, w, x in zip(rec["capacitor_id"], rec["action"], rec["why"], share)]
+    ids = [row["id"] for rows in acted.values() for row in rows]
+    names = {}
     if ids:
-        for c in UnitCapacitor.objects.filter(pk__in=ids).select_related("position"):
-            caps[c.unit_id].append(c)
+        names = {pk: (designator, role) for pk, designator, role in UnitCapacitor.objects.filter(pk__in=ids)
+                 .values_list("pk", "position__designator", "position__role")}
+    firsts = {}
+    for unit_id, rows in acted.items():
+        for row in rows:
+            row["designator"], row["role"] = names.get(row["id"], ("?", "general"))
+        ordered = by_action(rows)
+        if ordered:
+            firsts[ordered[0]["id"]] = ordered[0]
+    caps = {c.pk: c for c in UnitCapacitor.objects.filter(pk__in=list(firsts)).select_related("position")} \
+        if firsts else {}
+
+    def why_of(row):
+        cap = caps.get(row["id"])
+        if cap is None:
+            return ""
+        return position_why(row["action"], row["why_code"], cap, row["share"], today, policy.calendar_age_years)
+
     out = {}
-    for f in forecasts:
-        rows = position_plan(caps.get(f.unit_id, []), f, damage_limit=policy.damage_limit,
-                             calendar_age_years=policy.calendar_age_years, today=today)
-        out[f.unit_id] = [r for r in rows if r["action"] is not None]
+    for unit_id, rows in acted.items():
+        replace = sum(1 for r in rows if r["action"] == REPLACE)
+        out[unit_id] = (todo_line(rows, why_of=why_of), replace, len(rows) - replace)
     return out
 
 
@@ -108,13 +127,13 @@ def triage_rows(forecasts, *, policy, today):
     charged = charged_by_unit([f.unit_id for f in forecasts])
     rows = []
     for f in forecasts:
-        steps = plan.get(f.unit_id, [])
+        todo, replace, measure = plan.get(f.unit_id, ("", 0, 0))
         rows.append({
             "forecast": f,
             "unit": f.unit,
-            "todo": todo_line(steps) or (f.reasons[0] if f.reasons else ""),
-            "replace": sum(1 for s in steps if s["action"] == REPLACE),
-            "measure": sum(1 for s in steps if s["action"] != REPLACE),
+            "todo": todo or (f.reasons[0] if f.reasons else ""),
+            "replace": replace,
+            "measure": measure,
             "safety": safety_line(f.unit.gear_model, charged[f.unit_id]),
             "plain": _plain(f.unit.gear_model, charged[f.unit_id]),
         })
@@ -196,14 +215,20 @@ def parts_for_top(forecasts):
         return []
     tags = {f.unit_id: f.unit.asset_tag for f in forecasts}
     items = []
-    caps = UnitCapacitor.objects.filter(pk__in=ids).select_related("position")
-    for c in sorted(caps, key=lambda c: (c.unit_id, designator_key(c.position.designator))):
-        part = recommend(capacitance_uf=c.capacitance_uf, rated_voltage_v=c.rated_voltage_v,
-                         rated_life_h=c.rated_life_h, diameter_mm=c.diameter_mm, mount=c.mount,
-                         role=c.position.role, operating_voltage_v=c.position.operating_voltage_v)
-        items.append((part, (tags[c.unit_id], c.position.designator)))
+    rows = UnitCapacitor.objects.filter(pk__in=ids).values_list(
+        "unit_id", "position__designator", "capacitance_uf", "rated_voltage_v", "rated_life_h", "diameter_mm",
+        "mount", "position__role", "position__operating_voltage_v")
+    for unit_id, designator, *part in sorted(rows, key=lambda r: (r[0], designator_key(r[1]))):
+        items.append((_recommend(*part), (tags[unit_id], designator)))
     return [{"part": part, "qty": qty, "where": _where(where), "mount": MOUNT_WORDS.get(part.mount, part.mount)}
             for part, qty, where in group_parts(items)]
+
+
+@functools.lru_cache(maxsize=4096)
+def _recommend(capacitance_uf, rated_voltage_v, rated_life_h, diameter_mm, mount, role, operating_voltage_v):
+    """``scheduling.replacement.recommend``, once per kind of fitted part."""
+    return recommend(capacitance_uf=capacitance_uf, rated_voltage_v=rated_voltage_v, rated_life_h=rated_life_h,
+                     diameter_mm=diameter_mm, mount=mount, role=role, operating_voltage_v=operating_voltage_v)
 
 
 MOUNT_WORDS = {"radial": "radial", "axial": "axial", "smd": "surface mount"}
