@@ -7,7 +7,7 @@ from django.db import migrations, models
 class Migration(migrations.Migration):
 
     dependencies = [
-        ('fleet', '0005_rental_newest_index'),
+        ('fleet', '0006_workshop_records'),
         migrations.swappable_dependency(settings.AUTH_USER_MODEL),
     ]
 
