@@ -2,8 +2,8 @@
 
 - Desk: the scan box and the units out now.
 - Technician: the top of the triage list and the units on the bench or held.
-- Manager: what is due this month, the units held, recent imports and the
-  fleet at a glance.
+- Manager: what is due this month, the units held, the recorded overrides
+  (check-outs against the forecast), recent imports and the fleet at a glance.
 
 Every list is short (one screen) and links to the full page.
 """
@@ -11,7 +11,7 @@ Every list is short (one screen) and links to the full page.
 from django.contrib.auth.decorators import login_required
 from django.utils import timezone
 
-from fleet.models import Unit
+from fleet.models import CheckoutOverride, Unit
 from fleet.roles import DESK, MANAGER, TECHNICIAN, user_roles
 from reports import formatting as fmt
 from scheduling.loader import active_policy
@@ -25,6 +25,7 @@ from .access import page
 START_ROWS = 10
 OUT_NOW_ROWS = 25
 IMPORTS_SHOWN = 8
+OVERRIDES_SHOWN = 8
 
 
 @login_required
@@ -59,5 +60,7 @@ def home(request):
         ctx["due_rows"] = worklist.triage_rows(due[:START_ROWS], policy=policy, today=today)
         ctx["due_count"] = due.count()
         ctx["imports"] = list(ImportRecord.objects.select_related("user")[:IMPORTS_SHOWN])
+        ctx["overrides"] = list(CheckoutOverride.objects.select_related("unit", "rental", "decided_by")
+                                [:OVERRIDES_SHOWN])
         ctx["counts"] = selectors.fleet_counts()
     return page(request, "front/home.html", ctx)

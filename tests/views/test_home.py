@@ -105,3 +105,18 @@ def test_a_user_without_a_role_is_told_to_ask_a_manager(client, users):
     client.force_login(users.norole)
     text = client.get(reverse("home")).content.decode()
     assert "no role yet" in text
+
+
+def test_the_manager_sees_the_check_outs_made_against_the_forecast(client, users, fleet):
+    from front.workflows import rental_check_out as check_out
+
+    UnitForecast.objects.create(unit=fleet.unit, computed_at=timezone.now(), status="overdue", risk=0.3,
+                                horizon_days=90, max_damage_ratio=2.0, reasons=[], positions=b"", priority=1,
+                                act_by=timezone.localdate())
+    check_out(unit_id=fleet.unit.pk, job_ref="JOB-ODD", out_at=timezone.now() - dt.timedelta(hours=1),
+              user=users.desk, override_reason="Only unit left for the festival; the workshop agreed")
+    client.force_login(users.manager)
+    response = client.get(reverse("home"))
+    assert [o.rental.job_ref for o in response.context["overrides"]] == ["JOB-ODD"]
+    text = response.content.decode()
+    assert "Only unit left for the festival; the workshop agreed" in text and "NMB-0001" in text
