@@ -70,6 +70,7 @@ INSTALLED_APPS = [
     "django.contrib.messages",
     "django.contrib.staticfiles",
     "simple_history",
+    "django_celery_beat",
     "fleet",
     "scheduling",
     "reports",
@@ -190,6 +191,12 @@ else:
     EMAIL_BACKEND = "django.core.mail.backends.filebased.EmailBackend"
     EMAIL_FILE_PATH = VAR_DIR / "mail"
 DEFAULT_FROM_EMAIL = env_str("DEFAULT_FROM_EMAIL", "recap-scheduler@localhost")
+# Links in e-mail (the digest's unsubscribe link, the app) start with this.
+RECAP_BASE_URL = env_str("RECAP_BASE_URL", "http://127.0.0.1:8000")
+# The digest: a failed send is tried again after this many seconds, doubling
+# up to an hour; a send a worker left half-done is taken up again after the lease.
+DIGEST_RETRY_BASE_SECONDS = env_int("RECAP_DIGEST_RETRY_BASE_SECONDS", 60)
+DIGEST_LEASE_SECONDS = env_int("RECAP_DIGEST_LEASE_SECONDS", 300)
 
 # Background jobs.  REDIS_URL set: Redis is the Celery broker and result
 # store (production; any number of workers on any hosts).  Unset: the embedded
@@ -212,7 +219,9 @@ else:
     }
     CELERY_RESULT_BACKEND = None
 CELERY_TASK_ALWAYS_EAGER = env_bool("CELERY_TASK_ALWAYS_EAGER", False)
-CELERY_BEAT_SCHEDULE_FILENAME = str(CELERY_FOLDER / "beat-schedule")
+# The schedule lives in the database (django-celery-beat), so managers edit it
+# in the app; reports/schedule.py makes the default entries after migrate.
+CELERY_BEAT_SCHEDULER = "django_celery_beat.schedulers:DatabaseScheduler"
 CELERY_TASK_EAGER_PROPAGATES = True
 CELERY_TASK_ACKS_LATE = True
 CELERY_TASK_TIME_LIMIT = env_int("CELERY_TASK_TIME_LIMIT", 900)

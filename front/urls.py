@@ -18,6 +18,12 @@ urlpatterns = [
     path("bench/<str:asset_tag>/reading/", views.bench_reading, name="bench_reading"),
     path("bench/<str:asset_tag>/recap/", views.bench_recap, name="bench_recap"),
     path("bench/<str:asset_tag>/release/", views.bench_release, name="bench_release"),
+    path("workshop/sheets/", views.sheet_batches, name="sheet_batches"),
+    path("workshop/sheets/<int:pk>/", views.sheet_batch, name="sheet_batch"),
+    path("workshop/sheets/<int:pk>/sheets.pdf", views.sheet_batch_pdf, name="sheet_batch_pdf"),
+    path("digest/", views.digest_settings, name="digest_settings"),
+    path("digest/send-now/", views.digest_send_now, name="digest_send_now"),
+    path("digest/unsubscribe/<str:token>/", views.digest_unsubscribe, name="digest_unsubscribe"),
     path("data/import/", views.csv_import, name="csv_import"),
     path("data/export/<slug:kind>.csv", views.csv_export, name="csv_export"),
 ]

@@ -345,3 +345,30 @@ def unit_trajectory(*, forecast, installed_on, damage_limit, positions=TRAJECTOR
     curves.risk = risk_at(curves.days, damage_now=damage, rate_per_day=rate, threshold=threshold,
                           installed_day=installed, today_day=today_day, horizon_days=forecast.horizon_days)
     return curves, [int(c) for c in rec["capacitor_id"][worst]]
+
+
+#: Units whose histories one step of the nightly job brings up to date (the
+#: progress a fleet-wide run shows moves by this much).
+NIGHTLY_CHUNK = 2000
+
+
+def fleet_nightly_refresh(*, now=None, progress=None):
+    """The nightly job: bring every history up to date with the register and
+    count storage up to ``now``, in chunks of units (histories are per unit),
+    then recompute and store the whole fleet's forecast in one pass (priority
+    ranks the fleet as a whole).  ``progress(n_units)`` is called as units are
+    done, once for the histories and once for the forecast.  Returns
+    ``(SyncReport totals as a dict, ForecastRun)``."""
+    now = now or timezone.now()
+    ids = list(Unit.objects.exclude(status=Unit.Status.RETIRED).order_by("pk").values_list("pk", flat=True))
+    changed = advanced = 0
+    for start in range(0, len(ids), NIGHTLY_CHUNK):
+        chunk = ids[start:start + NIGHTLY_CHUNK]
+        report = thermal_sync(unit_ids=chunk, until=now, advance_storage=True)
+        changed, advanced = changed + report.changed, advanced + report.advanced
+        if progress:
+            progress(len(chunk))
+    run = forecast_refresh()
+    if progress:
+        progress(run.fleet.n_units)
+    return {"changed": changed, "advanced": advanced, "units": len(ids)}, run

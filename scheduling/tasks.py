@@ -8,8 +8,8 @@ from celery import shared_task
 from django.db import OperationalError
 from django.utils import timezone
 
+from . import services
 from .services import forecast_refresh
-from .thermal import thermal_sync
 
 RETRY = dict(autoretry_for=(OperationalError,), retry_backoff=True, max_retries=5, acks_late=True)
 
@@ -18,9 +18,8 @@ RETRY = dict(autoretry_for=(OperationalError,), retry_backoff=True, max_retries=
 def fleet_nightly_refresh():
     """Bring every thermal history up to date with the register and count
     storage up to now, then recompute the whole fleet's forecast."""
-    synced = thermal_sync(until=timezone.now(), advance_storage=True)
-    run = forecast_refresh()
-    return {"changed": synced.changed, "advanced": synced.advanced, "forecast": run.fleet.n_units,
+    synced, run = services.fleet_nightly_refresh(now=timezone.now())
+    return {"changed": synced["changed"], "advanced": synced["advanced"], "forecast": run.fleet.n_units,
             "cannot_forecast": len(run.unforecastable)}
 
 

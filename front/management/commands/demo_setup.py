@@ -10,8 +10,12 @@ demo or development database; the passwords are printed on the console.
 import time
 
 from django.core.management.base import BaseCommand, CommandError
+from django.utils import timezone
 
 from fleet.models import Unit
+from fleet.roles import MANAGER, TECHNICIAN
+
+DIGEST_ROLES = (MANAGER, TECHNICIAN)
 
 
 class Command(BaseCommand):
@@ -45,3 +49,21 @@ class Command(BaseCommand):
             self.stdout.write(f"Forecast {run.fleet.n_units} units.")
         users = create_demo_users()
         self.stdout.write("Demo logins: " + ", ".join(f"{name} / {password}" for name, password, _ in users))
+        self._digest([name for name, _, role in users if role in DIGEST_ROLES])
+
+    def _digest(self, usernames):
+        """The demo's manager and technician take the digest (unless they opted
+        out), and a new installation sends its first one a minute after start."""
+        from django.contrib.auth import get_user_model
+
+        from reports.digest.delivery import subscription_default
+        from reports.schedule import ensure_default_schedule, schedule_first_digest
+
+        for user in get_user_model().objects.filter(username__in=usernames):
+            subscription_default(user=user)
+        ensure_default_schedule()
+        when = schedule_first_digest()
+        if when is not None:
+            self.stdout.write(f"A first digest goes to {', '.join(usernames)} at about "
+                              f"{timezone.localtime(when):%H:%M} (the worker sends it; without EMAIL_HOST it is a "
+                              f"file under var/mail/).")
