@@ -256,8 +256,10 @@ def _chart(rows, policy, today):
     firsts = [members[0] for _, members in worst]
     installed = np.array([date_to_day(r.installed_on) for r, _ in firsts])
     start = float(installed.min())
-    days = np.linspace(start, today_day + CHART_YEARS_AHEAD * 365.25, 160)
-    days = np.union1d(days, [today_day])
+    # The paths are straight between their corners (the install date, today):
+    # those, the ends and a yearly tick are all the points a line needs.
+    end = today_day + CHART_YEARS_AHEAD * 365.25
+    days = np.union1d(np.concatenate([installed, [start, today_day, end]]), np.arange(start, end, 365.25))
     paths = damage_at(days, damage_now=[r.damage for r, _ in firsts], rate_per_day=[r.rate_per_day for r, _ in firsts],
                       installed_day=installed, today_day=today_day)
     years = np.array([fmt.decimal_year(day_to_date(d)) for d in days])

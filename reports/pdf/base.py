@@ -7,6 +7,10 @@ reports print (µ U+00B5, Ω U+03A9, ° U+00B0, × U+00D7, ≤ U+2264, – U+201
 a test checks them) and is embedded (subset) in every PDF.  It has no ballot
 box or tick glyph: tick boxes are drawn (:class:`TickBox`).
 
+Speed: ``rl_accel`` (ReportLab's own C accelerator, a separate package since
+reportlab 4) does the number formatting and string widths; without it a
+120-position sheet takes about twice as long to draw.
+
 Every page carries a header (what the pages belong to, the print date and
 "page n of m", counted per sheet when one PDF holds many) drawn by
 :class:`HeaderCanvas` once the sheet's page count is known.

@@ -18,7 +18,7 @@ FOOTER = ("Recap Scheduler service sheet \u00b7 predicted figures come from the 
           "practice")
 #: The capacitor table: (heading, width in points).
 COLUMNS = (("Ref", 30), ("Role", 56), ("Value", 42), ("Rated V", 30), ("Temp.", 28), ("Can D \u00d7 L", 52),
-           ("Mount", 32), ("Fitted", 40), ("Life used", 40), ("ESR now", 42), ("Action", 40), ("Why", 108),
+           ("Mount", 32), ("Fitted", 48), ("Life used", 40), ("ESR now", 42), ("Action", 40), ("Why", 100),
            ("Replacement (common practice)", 130), ("ESR read", 40), ("C read", 40), ("Done", 24))
 CELL_SIZE = 7.2
 
@@ -167,7 +167,8 @@ def _capacitor_table(sheet):
             esr = "dried out"
         else:
             esr = fmt.resistance(r.esr_now_ohm)
-        why = r.action_line.split(": ", 1)[1] if ": " in r.action_line else ""
+        # a part to leave says no more than its life used; the others say why
+        why = r.action_line.split(": ", 1)[1] if ": " in r.action_line and r.action != "leave" else ""
         cells = [r.designator, r.role, fmt.capacitance(r.capacitance_uf), fmt.volts(r.rated_voltage_v),
                  fmt.temperature(r.rated_temp_c), fmt.can_size(r.diameter_mm, r.length_mm), r.mount, fitted,
                  r.life_used if r.damage is not None else ""]
