@@ -12,8 +12,8 @@ from .bench import bench_intake, bench_reading, bench_recap, bench_release, benc
 from .data import csv_export, csv_import, import_order  # noqa: F401
 from .desk import check_in, check_out, desk_scan  # noqa: F401
 from .display import forecast_display, format_capacitance, hazard_words, position_plan  # noqa: F401
-from .home import home  # noqa: F401
 from .digest import digest_send_now, digest_settings, digest_unsubscribe  # noqa: F401
+from .home import home  # noqa: F401
 from .sheets import due_list, parts_list, sheet_batch, sheet_batch_pdf, sheet_batches, unit_sheet  # noqa: F401
 from .units import UNITS_PER_PAGE, unit_detail, unit_list  # noqa: F401
 from .workshop import workshop  # noqa: F401

@@ -13,11 +13,10 @@ number of queries (whatever the fleet's size) and kept as JSON on the
 
 import datetime as dt
 
-from django.apps import apps
 from django.db.models import Count
 from django.utils import timezone
 
-from fleet.models import ServiceRecord, Unit
+from fleet.models import CheckoutOverride, ServiceRecord, Unit
 from scheduling.models import UnitForecast
 
 from .. import formatting as fmt
@@ -66,18 +65,12 @@ def _capped(items):
 
 
 def _overrides(since):
-    """Check-outs recorded against the forecast since ``since`` (the register
-    keeps them once the desk records overrides)."""
-    try:
-        model = apps.get_model("fleet", "CheckoutOverride")
-    except LookupError:
-        return None
-    qs = model.objects.select_related("unit", "decided_by").order_by("decided_at")
-    if since is not None:
-        qs = qs.filter(decided_at__gte=since)
+    """Check-outs the desk recorded against the forecast since ``since``:
+    [asset tag, date, who, why]."""
+    qs = CheckoutOverride.objects.select_related("unit", "decided_by").filter(decided_at__gte=since)
     return [[o.unit.asset_tag, fmt.date(timezone.localtime(o.decided_at)),
              (o.decided_by.get_full_name() or o.decided_by.get_username()) if o.decided_by else "",
-             o.reason[:160]] for o in qs[:CHANGE_ROWS + 1]]
+             o.reason[:160]] for o in qs.order_by("decided_at")]
 
 
 def _changes(snapshot, previous, today):
@@ -99,6 +92,8 @@ def _changes(snapshot, previous, today):
                  or (r.technician.get_username() if r.technician_id else "")]
                 for r in recaps.select_related("technician").order_by("performed_on", "unit__asset_tag")]
     overrides = _overrides(since if since else timezone.now() - dt.timedelta(days=7))
+    reasons = dict(Unit.objects.filter(asset_tag__in=held[:CHANGE_ROWS]).values_list("asset_tag", "hold_reason"))
+    held = [[tag, reasons.get(tag, "")] for tag in held]
     return {
         "since": fmt.moment(timezone.localtime(since)) if since else None,
         "first": previous is None,
@@ -107,7 +102,7 @@ def _changes(snapshot, previous, today):
         "released": _capped(released),
         "newly_due": _capped(newly_due),
         "recapped": _capped(recapped),
-        "overrides": None if overrides is None else _capped(overrides),
+        "overrides": _capped(overrides),
     }
 
 

@@ -14,7 +14,7 @@ from django.core.management import CommandError, call_command
 from django.utils import timezone
 
 from fleet.models import ServiceRecord, Unit
-from fleet.services import unit_hold
+from fleet.services import rental_open, unit_hold
 from reports.digest import delivery as D
 from reports.digest.content import digest_content
 from reports.digest.render import unsubscribe_token, user_from_token
@@ -66,7 +66,7 @@ def test_the_content_is_the_databases(world):
 def test_what_changed_since_the_last_digest(world):
     first, _ = D.digest_prepare(period="2026-W40", today=dt.date(2026, 10, 1))
     held, released = world.units[0], world.units[1]
-    unit_hold(unit_id=held.pk)
+    unit_hold(unit_id=held.pk, reason="customer reported hum on the B channel")
     Unit.objects.filter(pk=released.pk).update(status=Unit.Status.HOLD)
     # the earlier digest saw the second unit held; now it is back in use
     snap = dict(first.snapshot)
@@ -75,10 +75,16 @@ def test_what_changed_since_the_last_digest(world):
     Unit.objects.filter(pk=released.pk).update(status=Unit.Status.AVAILABLE)
     ServiceRecord.objects.create(unit=world.units[2], kind=ServiceRecord.Kind.RECAP,
                                  performed_on=timezone.localdate(), technician_name="Teo")
+    out = world.units[2]
+    rental_open(unit_id=out.pk, job_ref="J-0042", user=world.manager,
+                override={"reason": "only unit of its kind free for the festival", "forecast_status": "overdue"})
     second, created = D.digest_prepare(period="2026-W41", today=dt.date(2026, 10, 8))
     changes = second.content["changes"]
     assert created and not changes["first"]
-    assert changes["newly_held"]["items"] == [held.asset_tag]
+    assert changes["newly_held"]["items"] == [[held.asset_tag, "customer reported hum on the B channel"]]
+    (override,) = changes["overrides"]["items"]
+    assert override[0] == out.asset_tag and override[2] == "Mara"
+    assert override[3] == "only unit of its kind free for the festival"
     assert changes["released"]["items"] == [released.asset_tag]
     assert [r[0] for r in changes["recapped"]["items"]] == [world.units[2].asset_tag]
 
