@@ -3,14 +3,15 @@ progress in the database (the page polls it).
 
 ``batch_create`` checks the units and queues the build after the transaction
 commits; ``batch_build`` claims a queued batch with one conditional update (a
-second delivery of the task finds it taken or done and does nothing), gathers
+second delivery of the task finds it taken or done and does nothing; a
+database hiccup puts it back in the queue for the task's retry), gathers
 each unit's sheet and draws them, writing how far it got every few units, and
 stores the PDF on the row (so a worker on any host hands it to the web).
 """
 
 import logging
 
-from django.db import transaction
+from django.db import OperationalError, transaction
 from django.utils import timezone
 
 from fleet.models import Unit
@@ -102,6 +103,9 @@ def batch_build(batch_id):
                 pass
             step()
         data = batch_pdf_bytes(sheets, on_draw=step)
+    except OperationalError:  # the database let go: queued again for the task's retry
+        SheetBatch.objects.filter(pk=batch.pk).update(state=State.QUEUED, done=0)
+        raise
     except Exception as exc:  # keep the reason on the row for the page, then let the task see it
         SheetBatch.objects.filter(pk=batch.pk).update(state=State.FAILED, error=f"{type(exc).__name__}: {exc}"[:300],
                                                       finished_at=timezone.now())

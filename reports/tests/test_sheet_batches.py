@@ -91,3 +91,32 @@ def test_limits_and_access(client, users, fleet):
     assert client.get(reverse("sheet_batches")).status_code == 403
     client.force_login(users.technician)
     assert client.get(reverse("sheet_batch_pdf", args=[999])).status_code == 404
+
+
+def test_a_database_hiccup_queues_the_batch_again_for_the_retry(fleet, monkeypatch):
+    from django.db import OperationalError
+
+    batch = batches.batch_create(unit_ids=[u.pk for u in fleet[:2]], title="two", enqueue=False)
+    real = batches.unit_sheet
+    calls = {"n": 0}
+
+    def flaky(**kw):
+        calls["n"] += 1
+        if calls["n"] == 2:
+            raise OperationalError("database is locked")
+        return real(**kw)
+
+    monkeypatch.setattr(batches, "unit_sheet", flaky)
+    with pytest.raises(OperationalError):
+        batches.batch_build(batch.pk)
+    assert SheetBatch.objects.get(pk=batch.pk).state == "queued"
+    assert batches.batch_build(batch.pk) == "done", "the retry finishes it"
+
+
+def test_a_failure_is_shown_on_the_batch(fleet, monkeypatch):
+    batch = batches.batch_create(unit_ids=[fleet[0].pk], title="one", enqueue=False)
+    monkeypatch.setattr(batches, "batch_pdf_bytes", lambda *a, **k: (_ for _ in ()).throw(RuntimeError("no room")))
+    with pytest.raises(RuntimeError):
+        batches.batch_build(batch.pk)
+    failed = SheetBatch.objects.get(pk=batch.pk)
+    assert failed.state == "failed" and failed.error == "RuntimeError: no room"
