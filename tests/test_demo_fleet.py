@@ -273,6 +273,18 @@ class DemoSetupCommandTests(TestCase):
             self.assertTrue(self.client.login(username=username, password=password))
             self.client.logout()
 
+    def test_it_records_one_check_out_against_the_forecast_for_the_manager(self):
+        from fleet.models import CheckoutOverride
+        from fixtures.demo_fleet import DEMO_OVERRIDE_REASON
+
+        override = CheckoutOverride.objects.select_related("unit", "rental").get()
+        self.assertEqual(override.reason, DEMO_OVERRIDE_REASON)
+        self.assertEqual(override.unit.status, Unit.Status.OUT)
+        self.assertIsNone(override.rental.in_at)
+        self.assertIn(override.forecast_status, ("due", "overdue"))
+        run_demo_setup()
+        self.assertEqual(CheckoutOverride.objects.count(), 1)
+
     def test_a_second_run_resets_a_changed_password(self):
         desk = get_user_model().objects.get(username="desk")
         desk.set_password("something-else-entirely")

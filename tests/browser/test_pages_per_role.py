@@ -74,12 +74,13 @@ def chromium():
 @pytest.fixture
 def demo():
     """The demo fleet, forecast, with its three logins."""
-    from fixtures.demo_fleet import DEMO_USERS, build_demo_fleet, create_demo_users
+    from fixtures.demo_fleet import DEMO_USERS, add_demo_override, build_demo_fleet, create_demo_users
     from scheduling.services import forecast_refresh
 
     build_demo_fleet()
     forecast_refresh()
     create_demo_users()
+    add_demo_override()
     return {role: (name, password) for name, password, role, _ in DEMO_USERS}
 
 

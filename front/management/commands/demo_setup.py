@@ -48,6 +48,10 @@ class Command(BaseCommand):
             run = forecast_refresh()
             self.stdout.write(f"Forecast {run.fleet.n_units} units.")
         users = create_demo_users()
+        from fixtures.demo_fleet import add_demo_override
+
+        if add_demo_override() is not None:
+            self.stdout.write("Recorded the demo's one check-out against the forecast.")
         self.stdout.write("Demo logins: " + ", ".join(f"{name} / {password}" for name, password, _ in users))
         self._digest([name for name, _, role in users if role in DIGEST_ROLES])
 
