@@ -55,8 +55,8 @@ def bench_visit_open(*, unit_id, notes="", user=None, at=None):
         raise ServiceError(f"{unit.asset_tag} is retired.")
     visit = open_visit(unit.pk)
     if visit is not None:
-        raise ServiceError(f"{unit.asset_tag} is already on the bench (since "
-                           f"{timezone.localtime(visit.opened_at):%d %b %Y %H:%M}).")
+        since = timezone.localtime(visit.opened_at)
+        raise ServiceError(f"{unit.asset_tag} is already on the bench (since {since.day} {since:%b %Y %H:%M}).")
     visit = BenchVisit(unit=unit, opened_at=at or timezone.now(), opened_by=user, intake_notes=notes.strip(),
                        came_from=unit.status)
     by(visit, user).save()

@@ -483,7 +483,7 @@ class Rental(models.Model):
         if unit is not None and self.out_at is not None:
             local_day = timezone.localdate(self.out_at)
             if unit.joined_on and local_day < unit.joined_on:
-                errors["out_at"] = (f"{unit.asset_tag} joined the fleet on {unit.joined_on:%d %b %Y}; "
+                errors["out_at"] = (f"{unit.asset_tag} joined the fleet on {unit.joined_on.day} {unit.joined_on:%b %Y}; "
                                     f"it cannot have gone out before that.")
             elif unit.year_made and local_day.year < unit.year_made:
                 errors["out_at"] = f"{unit.asset_tag} was made in {unit.year_made}; it cannot have gone out before that."

@@ -10,6 +10,7 @@ from django.contrib.auth import get_user_model
 from django.utils import timezone
 
 from fleet.models import BenchVisit, Reading, Rental, ServiceRecord, Unit, UnitCapacitor
+from reports import formatting as fmt
 
 #: Versions read per table, and changes shown.
 PER_TABLE = 300
@@ -28,7 +29,7 @@ def _label(record, model):
     if model is Rental:
         return f"Hire {record.job_ref}"
     if model is ServiceRecord:
-        return f"{record.get_kind_display()} of {record.performed_on:%d %b %Y}"
+        return f"{record.get_kind_display()} of {fmt.date(record.performed_on)}"
     if model is BenchVisit:
         return "Bench visit"
     return "Reading"
@@ -45,9 +46,9 @@ def _words(value):
     if value in (None, ""):
         return "—"
     if isinstance(value, dt.datetime):
-        return f"{timezone.localtime(value):%d %b %Y %H:%M}"
+        return fmt.moment(timezone.localtime(value))
     if isinstance(value, dt.date):
-        return f"{value:%d %b %Y}"
+        return fmt.date(value)
     if isinstance(value, float):
         return f"{value:g}"
     text = str(value)
@@ -58,7 +59,7 @@ def _created(v, model, designators):
     """What a new record says, in a few words."""
     if model is UnitCapacitor:
         return (f"fitted: {v.capacitance_uf:g} µF {v.rated_voltage_v:g} V {v.rated_temp_c:g} °C "
-                f"{v.rated_life_h:g} h, on {v.installed_on:%d %b %Y}")
+                f"{v.rated_life_h:g} h, on {fmt.date(v.installed_on)}")
     if model is Reading:
         if v.kind == Reading.Kind.RAIL:
             return f"{v.rail_name} rail {v.rail_measured_v:+g} V" + (f" at {v.rail_load_ma:g} mA"

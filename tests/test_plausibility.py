@@ -154,7 +154,7 @@ def test_a_check_out_before_the_unit_joined_the_fleet_is_refused(fleet):
     with pytest.raises(ValidationError) as info:
         rental_check_out(unit_id=fleet.unit.pk, job_ref="OLD", out_at=dt.datetime(1900, 1, 2, tzinfo=dt.timezone.utc))
     assert info.value.message_dict["out_at"] == [
-        "NMB-0001 joined the fleet on 01 Mar 2015; it cannot have gone out before that."]
+        "NMB-0001 joined the fleet on 1 Mar 2015; it cannot have gone out before that."]
     assert not Rental.objects.exists()
     rental_check_out(unit_id=fleet.unit.pk, job_ref="NEW", out_at=timezone.now() - dt.timedelta(days=2))
     with pytest.raises(ServiceError, match="1e\\+06 h powered is more than the 48.0 h the unit was out"):
