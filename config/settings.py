@@ -6,6 +6,7 @@ environment at all the app runs on one machine: SQLite under ``var/``, the
 in-process task runner instead of Redis, and e-mail written to ``var/mail/``.
 """
 
+from datetime import timedelta
 from pathlib import Path
 import os
 
@@ -71,6 +72,7 @@ INSTALLED_APPS = [
     "django.contrib.staticfiles",
     "simple_history",
     "django_celery_beat",
+    "axes",
     "fleet",
     "scheduling",
     "reports",
@@ -90,7 +92,30 @@ MIDDLEWARE = [
     "front.middleware.BusyDatabaseMiddleware",
     # Who changed what: the audit trail records the signed-in user of a page's request.
     "simple_history.middleware.HistoryRequestMiddleware",
+    # Last, as django-axes asks: it answers a locked-out sign-in.
+    "axes.middleware.AxesMiddleware",
 ]
+
+# Sign-in throttling (django-axes, a well-kept library): after
+# RECAP_LOGIN_FAILURE_LIMIT wrong passwords in a row for one username, that
+# username is locked out for RECAP_LOGIN_COOLOFF_MINUTES (a manager can release
+# it sooner in the admin, Axes -> Access attempts); a right password resets the
+# count.  Locking the username, not the address, keeps one mistyping person from
+# locking out a whole office behind one address.
+AUTHENTICATION_BACKENDS = [
+    "axes.backends.AxesStandaloneBackend",
+    "django.contrib.auth.backends.ModelBackend",
+]
+AXES_FAILURE_LIMIT = env_int("RECAP_LOGIN_FAILURE_LIMIT", 5)
+AXES_COOLOFF_TIME = timedelta(minutes=env_int("RECAP_LOGIN_COOLOFF_MINUTES", 15))
+AXES_LOCKOUT_PARAMETERS = ["username"]
+AXES_RESET_ON_SUCCESS = True
+AXES_LOCKOUT_CALLABLE = "front.views.errors.locked_out"
+AXES_CLIENT_IP_CALLABLE = "front.middleware.client_ip"
+AXES_VERBOSE = False
+# axes.W006 warns that a lockout without the address can be dodged by changing
+# browser or cookies; a lockout by username holds whatever the browser.
+SILENCED_SYSTEM_CHECKS = ["axes.W006"]
 
 ROOT_URLCONF = "config.urls"
 
@@ -237,6 +262,12 @@ if not DEBUG:
     SECURE_HSTS_SECONDS = env_int("SECURE_HSTS_SECONDS", 31536000)
     SECURE_HSTS_INCLUDE_SUBDOMAINS = env_bool("SECURE_HSTS_INCLUDE_SUBDOMAINS", True)
     SECURE_HSTS_PRELOAD = env_bool("SECURE_HSTS_PRELOAD", True)
+
+# A reverse proxy in front (it terminates TLS and sets X-Forwarded-Proto and
+# X-Forwarded-For): only then are those headers believed; without a proxy any
+# client could send them.
+RECAP_BEHIND_PROXY = env_bool("RECAP_BEHIND_PROXY", False)
+if RECAP_BEHIND_PROXY:
     SECURE_PROXY_SSL_HEADER = ("HTTP_X_FORWARDED_PROTO", "https")
 
 LOGGING = {

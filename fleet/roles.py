@@ -1,10 +1,11 @@
 """The three kinds of user and what each may do.
 
-Roles are Django groups, so a manager can grant them in the admin.  A
-superuser counts as every role.
+Roles are Django groups.  The manager group holds the admin permissions of
+the register and the engine, and of the sign-in lockouts (to release one
+early).  A superuser counts as every role.
 """
 
-from django.contrib.auth.models import Group
+from django.contrib.auth.models import Group, Permission
 
 DESK = "desk"
 TECHNICIAN = "technician"
@@ -13,9 +14,30 @@ ROLES = (DESK, TECHNICIAN, MANAGER)
 ROLE_LABELS = {DESK: "Rental desk", TECHNICIAN: "Technician", MANAGER: "Manager"}
 
 
+#: Apps whose admin permissions the manager group holds.
+MANAGER_APPS = ("fleet", "scheduling", "reports", "axes")
+
+
 def ensure_groups():
-    """Create the role groups if they are missing; returns {role: Group}."""
-    return {role: Group.objects.get_or_create(name=role)[0] for role in ROLES}
+    """Create the role groups if they are missing, the manager group with
+    its admin permissions; returns {role: Group}."""
+    groups = {}
+    for role in ROLES:
+        group, created = Group.objects.get_or_create(name=role)
+        if role == MANAGER and (created or not group.permissions.exists()):
+            group.permissions.set(Permission.objects.filter(content_type__app_label__in=MANAGER_APPS))
+        groups[role] = group
+    return groups
+
+
+def groups_after_migrate(sender, **kwargs):
+    """post_migrate: the role groups exist, with the manager's permissions
+    (run for the last app, when every app's permissions have been made)."""
+    from django.conf import settings
+
+    last = settings.INSTALLED_APPS[-1].rsplit(".", 1)[-1]
+    if sender.label == last:
+        ensure_groups()
 
 
 def user_roles(user):

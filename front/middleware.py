@@ -3,6 +3,7 @@ in words."""
 
 import logging
 
+from django.conf import settings
 from django.db import OperationalError
 from django.http import HttpResponse, HttpResponseBadRequest
 from django.shortcuts import render
@@ -69,3 +70,13 @@ def busy_response(request):
                                 status=503, content_type="text/plain; charset=utf-8")
     response["Retry-After"] = str(BUSY_RETRY_AFTER_S)
     return response
+
+
+def client_ip(request):
+    """The client's address: the one the proxy appended to X-Forwarded-For
+    when ``RECAP_BEHIND_PROXY`` says a proxy is in front, else the peer's."""
+    if settings.RECAP_BEHIND_PROXY:
+        forwarded = [part.strip() for part in request.META.get("HTTP_X_FORWARDED_FOR", "").split(",") if part.strip()]
+        if forwarded:
+            return forwarded[-1]
+    return request.META.get("REMOTE_ADDR")

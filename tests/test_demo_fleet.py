@@ -8,6 +8,7 @@ from django.contrib.auth import get_user_model
 from django.core.management import call_command
 from django.db import transaction
 from django.db.models import Count, Q
+from django.http import HttpRequest
 from django.test import TestCase
 from django.utils import timezone
 
@@ -270,7 +271,8 @@ class DemoSetupCommandTests(TestCase):
             user = get_user_model().objects.get(username=username)
             self.assertTrue(user.groups.filter(name=role).exists())
             self.assertEqual(user.is_staff, role == "manager")
-            self.assertTrue(self.client.login(username=username, password=password))
+            # The sign-in throttle (django-axes) needs the request the password came with.
+            self.assertTrue(self.client.login(request=HttpRequest(), username=username, password=password))
             self.client.logout()
 
     def test_it_records_one_check_out_against_the_forecast_for_the_manager(self):
@@ -290,7 +292,7 @@ class DemoSetupCommandTests(TestCase):
         desk.set_password("something-else-entirely")
         desk.save()
         run_demo_setup()
-        self.assertTrue(self.client.login(username="desk", password=DEMO_USERS[0][1]))
+        self.assertTrue(self.client.login(request=HttpRequest(), username="desk", password=DEMO_USERS[0][1]))
 
 
 class DemoForecastTests(TestCase):

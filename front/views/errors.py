@@ -1,4 +1,5 @@
-"""The server-error page: a busy database answers "try again" (503)."""
+"""Error pages: a busy database answers "try again" (503); a login paused
+after too many wrong passwords says so (429)."""
 
 import sys
 
@@ -15,3 +16,16 @@ def server_error_or_busy(request, template_name="500.html"):
     if is_busy(exc):
         return busy_response(request)
     return server_error(request, template_name)
+
+
+def locked_out(request, original_response=None, credentials=None):
+    """The page django-axes shows when a login is paused after too many wrong
+    passwords (429): who, for how long, and who can release it sooner."""
+    from django.conf import settings
+    from django.shortcuts import render
+
+    username = (credentials or {}).get("username") or request.POST.get("username", "")
+    minutes = int(settings.AXES_COOLOFF_TIME.total_seconds() // 60) if settings.AXES_COOLOFF_TIME else None
+    return render(request, "registration/locked_out.html",
+                  {"username": username, "minutes": minutes, "failure_limit": settings.AXES_FAILURE_LIMIT},
+                  status=429)
