@@ -1,6 +1,7 @@
 """The three kinds of user and what each may do.
 
-Roles are Django groups.  The manager group holds the admin permissions of
+Roles are Django groups; managers grant and take them away on the People
+page (``fleet.people``).  The manager group holds the admin permissions of
 the register and the engine, and of the sign-in lockouts (to release one
 early).  A superuser counts as every role.
 """

@@ -15,6 +15,7 @@ from scheduling.models import UnitForecast
 from . import selectors
 from .workflows import OVERRIDE_STATUSES
 from fleet.models import AMBIENT_MAX_C, AMBIENT_MIN_C, EARLIEST_DATE, Role, Unit
+from fleet.roles import ROLE_LABELS, ROLES
 
 FUTURE_SLACK = dt.timedelta(minutes=5)
 
@@ -275,3 +276,39 @@ class CsvUploadForm(PlainForm):
             if not f.name.lower().endswith(".csv"):
                 raise forms.ValidationError(f"{f.name} is not a .csv file.")
         return files
+
+
+class PersonForm(PlainForm):
+    """A login and its roles, as a manager keeps them (``fleet.people``)."""
+
+    username = forms.CharField(label="Username", max_length=150,
+                               help_text="Letters, digits and @ . + - _ only; the person signs in with it.")
+    first_name = forms.CharField(label="First name", max_length=150, required=False)
+    last_name = forms.CharField(label="Last name", max_length=150, required=False)
+    email = forms.EmailField(label="E-mail", required=False)
+    roles = forms.MultipleChoiceField(label="Roles", required=False, widget=forms.CheckboxSelectMultiple,
+                                      choices=[(r, ROLE_LABELS[r]) for r in ROLES],
+                                      help_text="A manager also sees every other role's pages and the admin.")
+    is_active = forms.BooleanField(label="May sign in", required=False, initial=True)
+    password1 = forms.CharField(label="Password", required=False, strip=False,
+                                widget=forms.PasswordInput(attrs={"autocomplete": "new-password"}))
+    password2 = forms.CharField(label="Password again", required=False, strip=False,
+                                widget=forms.PasswordInput(attrs={"autocomplete": "new-password"}))
+
+    def __init__(self, *args, person=None, **kwargs):
+        super().__init__(*args, **kwargs)
+        self.person = person
+        if person is not None:
+            del self.fields["username"]
+            self.fields["password1"].label = "New password"
+            self.fields["password1"].help_text = "Leave empty to keep the present one."
+        else:
+            self.fields["password1"].required = True
+            self.fields["password2"].required = True
+
+    def clean(self):
+        cleaned = super().clean()
+        p1, p2 = cleaned.get("password1"), cleaned.get("password2")
+        if p1 and p1 != p2:
+            self.add_error("password2", "The two passwords differ.")
+        return cleaned

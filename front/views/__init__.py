@@ -15,5 +15,6 @@ from .display import forecast_display, format_capacitance, hazard_words, positio
 from .digest import digest_send_now, digest_settings, digest_unsubscribe  # noqa: F401
 from .home import home  # noqa: F401
 from .sheets import due_list, parts_list, sheet_batch, sheet_batch_pdf, sheet_batches, unit_sheet  # noqa: F401
+from .people import people_list, person_edit, person_new  # noqa: F401
 from .units import UNITS_PER_PAGE, unit_detail, unit_list  # noqa: F401
 from .workshop import workshop  # noqa: F401

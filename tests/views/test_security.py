@@ -1,8 +1,9 @@
-"""Sign-in throttling and the forwarded-protocol header.
+"""Sign-in throttling, the forwarded-protocol header, and the People page.
 
 Thirty wrong passwords in a row used to be refused one by one and the right
 one then worked; now a login is paused after five (django-axes).  The
 forwarded headers are believed only when a setting says a proxy is in front.
+Managers grant and take away the app's roles, and nothing else.
 """
 
 import datetime as dt
@@ -17,8 +18,9 @@ from django.contrib.auth import get_user_model
 from django.test import RequestFactory
 from django.urls import reverse
 
+from fleet.roles import DESK, MANAGER, TECHNICIAN, user_roles
 from front.middleware import client_ip
-from tests.base import PASSWORD
+from tests.base import PASSWORD, make_user
 
 ROOT = Path(__file__).resolve().parent.parent.parent
 LOGIN = reverse("login")
@@ -112,3 +114,75 @@ def test_the_client_address_comes_from_the_proxy_only_when_there_is_one(settings
     assert client_ip(request) == "10.0.0.5"
     settings.RECAP_BEHIND_PROXY = True
     assert client_ip(request) == "198.51.100.7"  # the address the proxy itself appended
+
+
+# --- people and roles ------------------------------------------------------------------------------
+
+PERSON = {"first_name": "Pia", "last_name": "Porter", "email": "pia@example.org", "is_active": "on"}
+
+
+def test_a_manager_adds_a_login_with_a_role_and_it_can_sign_in(client, users):
+    client.force_login(users.manager)
+    response = client.post(reverse("person_new"), {"username": "pia.porter", "roles": [DESK],
+                                                   "password1": "long-enough-words-17", "password2":
+                                                   "long-enough-words-17", **PERSON})
+    assert response.status_code == 302
+    pia = get_user_model().objects.get(username="pia.porter")
+    assert user_roles(pia) == {DESK} and not pia.is_staff and not pia.is_superuser
+    assert not pia.user_permissions.exists()
+    client.post(reverse("logout"))
+    assert sign_in(client, "pia.porter", "long-enough-words-17").status_code == 302
+    assert client.get(reverse("check_out")).status_code == 200
+
+
+def test_a_manager_grants_and_takes_away_roles(client, users):
+    client.force_login(users.manager)
+    url = reverse("person_edit", args=[users.desk.pk])
+    response = client.post(url, {"roles": [TECHNICIAN, MANAGER], **PERSON})
+    assert response.status_code == 302
+    desk = get_user_model().objects.get(pk=users.desk.pk)
+    assert user_roles(desk) == {TECHNICIAN, MANAGER} and desk.is_staff
+    client.force_login(desk)
+    assert client.get(reverse("admin:fleet_unit_changelist")).status_code == 200  # a manager uses the admin
+    assert client.get(reverse("admin:auth_user_changelist")).status_code == 403    # but not Django's users
+    client.force_login(users.manager)
+    client.post(url, {"roles": [DESK], **PERSON})
+    desk = get_user_model().objects.get(pk=users.desk.pk)
+    assert user_roles(desk) == {DESK} and not desk.is_staff
+    page = client.get(reverse("people")).content.decode()
+    assert "dora.desk" in page and "Rental desk" in page
+
+
+def test_what_a_manager_may_not_do(client, users):
+    client.force_login(users.manager)
+    response = client.post(reverse("person_edit", args=[users.manager.pk]), {"roles": [DESK], **PERSON})
+    assert response.status_code == 200
+    assert "You cannot take away your own manager role; ask another manager." in response.content.decode()
+    response = client.post(reverse("person_edit", args=[users.manager.pk]), {"roles": [MANAGER], "first_name": ""})
+    assert "You cannot switch off your own login" in response.content.decode()
+    assert get_user_model().objects.get(pk=users.manager.pk).is_active
+    root = make_user("superuser", username="root")
+    response = client.post(reverse("person_edit", args=[root.pk]), {"roles": [DESK], **PERSON})
+    assert response.status_code == 302
+    assert get_user_model().objects.get(pk=root.pk).is_superuser
+    response = client.post(reverse("person_new"), {"username": "weak", "roles": [DESK], "password1": "12345678",
+                                                   "password2": "12345678", **PERSON})
+    assert response.status_code == 200
+    assert "This password is entirely numeric." in response.content.decode()
+    response = client.post(reverse("person_new"), {"username": "dora.desk", "roles": [DESK],
+                                                   "password1": "long-enough-words-17",
+                                                   "password2": "long-enough-words-17", **PERSON})
+    assert "A user with that username already exists." in response.content.decode()
+    response = client.post(reverse("person_new"), {"username": "x", "roles": ["superuser"],
+                                                   "password1": "long-enough-words-17",
+                                                   "password2": "long-enough-words-17", **PERSON})
+    assert response.status_code == 200
+    assert not get_user_model().objects.filter(username__in=["weak", "x"]).exists()
+
+
+def test_only_managers_see_the_people_page(client, users):
+    for user in (users.desk, users.technician, users.norole):
+        client.force_login(user)
+        assert client.get(reverse("people")).status_code == 403
+        assert client.post(reverse("person_edit", args=[users.desk.pk]), {"roles": [MANAGER]}).status_code == 403
+    assert user_roles(get_user_model().objects.get(pk=users.desk.pk)) == {DESK}
