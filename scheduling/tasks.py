@@ -26,7 +26,15 @@ def fleet_nightly_refresh():
 @shared_task(name="scheduling.unit_forecast_refresh", soft_time_limit=60, time_limit=90, **RETRY)
 def unit_forecast_refresh(unit_id):
     """Bring one unit's thermal history up to date with its records and
-    recompute its forecast (e.g. after its dates were edited in the admin)."""
+    recompute its forecast, in the background.
+
+    Nothing in the app queues it: a check-in, a recorded recap and an edit
+    in the admin recompute the unit at once in their own request, and an
+    import brings the histories up to date and leaves the forecasts to the
+    nightly refresh (``fleet_nightly_refresh``) or ``manage.py forecast``.
+    It is for an operator or another service (``celery call``,
+    ``send_task``) that wants one unit brought up to date now.
+    """
     if not isinstance(unit_id, int) or isinstance(unit_id, bool) or unit_id <= 0:
         raise ValueError(f"unit_id must be a positive whole number, not {unit_id!r}")
     run = forecast_refresh(unit_ids=[unit_id])

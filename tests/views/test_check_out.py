@@ -135,3 +135,22 @@ def test_a_tag_from_the_start_page_is_filled_in_and_the_cursor_moves_on(client, 
     form = response.context["form"]
     assert form.initial["asset_tag"] == "NMB-0001"
     assert form.fields["job_ref"].widget.attrs.get("autofocus")
+
+
+def test_the_came_back_at_message_is_in_local_time(client, users, fleet):
+    """The form takes local time, so the message gives local time too (IANA tz database, Europe/London:
+    British Summer Time is UTC+1 in July)."""
+    import datetime as dt
+
+    from front.workflows import rental_check_in, rental_check_out
+
+    utc = dt.timezone.utc
+    rental_check_out(unit_id=fleet.unit.pk, job_ref="JOB-1", out_at=dt.datetime(2024, 7, 10, 8, 0, tzinfo=utc))
+    rental_check_in(unit_id=fleet.unit.pk, in_at=dt.datetime(2024, 7, 12, 16, 30, tzinfo=utc), venue_ambient_c=25,
+                    powered_hours=5)
+    Unit.objects.filter(pk=fleet.unit.pk).update(status=Unit.Status.AVAILABLE)
+    client.force_login(users.desk)
+    response = client.post(URL, {"asset_tag": "NMB-0001", "job_ref": "JOB-2", "expected_ambient_c": "24",
+                                 "out_at": "2024-07-12T17:00", "send_anyway": "on"})
+    assert response.status_code == 200
+    assert "NMB-0001 came back at 2024-07-12 17:30; it cannot go out before that." in response.content.decode()
