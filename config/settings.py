@@ -199,9 +199,14 @@ LOGIN_REDIRECT_URL = "home"
 LOGOUT_REDIRECT_URL = "login"
 
 # Largest upload the CSV import page accepts (bytes).  The importer streams the
-# file row by row, so the limit is about disk and patience, not memory.
+# file row by row, so the limit is about disk and patience, not memory; larger
+# files are imported with `manage.py import_fleet`.  Uploads up to
+# RECAP_IMPORT_INLINE_BYTES are imported while the browser waits (a few
+# seconds); larger ones run as a background job with a page of their own, so
+# no web worker is kept past its timeout.
 FILE_UPLOAD_MAX_MEMORY_SIZE = 2_621_440
 RECAP_UPLOAD_MAX_BYTES = env_int("RECAP_UPLOAD_MAX_BYTES", 50 * 1024 * 1024)
+RECAP_IMPORT_INLINE_BYTES = env_int("RECAP_IMPORT_INLINE_BYTES", 512 * 1024)
 
 # E-mail: by default messages are written as files under var/mail/ so a user
 # of the demo can read them.  Set EMAIL_HOST to send through SMTP.
@@ -244,6 +249,14 @@ else:
     }
     CELERY_RESULT_BACKEND = None
 CELERY_TASK_ALWAYS_EAGER = env_bool("CELERY_TASK_ALWAYS_EAGER", False)
+# The cache carries a background import's rows-read figure to the page (the
+# import's own transaction holds SQLite's write lock): Redis with REDIS_URL,
+# else files under var/cache that every process on the machine reads.
+if REDIS_URL:
+    CACHES = {"default": {"BACKEND": "django.core.cache.backends.redis.RedisCache", "LOCATION": REDIS_URL}}
+else:
+    CACHES = {"default": {"BACKEND": "django.core.cache.backends.filebased.FileBasedCache",
+                          "LOCATION": str(VAR_DIR / "cache")}}
 # The schedule lives in the database (django-celery-beat), so managers edit it
 # in the app; reports/schedule.py makes the default entries after migrate.
 CELERY_BEAT_SCHEDULER = "django_celery_beat.schedulers:DatabaseScheduler"

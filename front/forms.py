@@ -271,7 +271,8 @@ class CsvUploadForm(PlainForm):
         for f in files:
             if f.size > limit:
                 raise forms.ValidationError(
-                    f"{f.name} is {f.size / 1e6:.1f} MB; the largest file this page takes is {limit / 1e6:.0f} MB."
+                    f"{f.name} is {f.size / 1e6:.1f} MB; the largest file this page takes is {limit / 1e6:.0f} MB. "
+                    f"Import larger files on the server with: python manage.py import_fleet FILE..."
                 )
             if not f.name.lower().endswith(".csv"):
                 raise forms.ValidationError(f"{f.name} is not a .csv file.")

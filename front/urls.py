@@ -26,6 +26,7 @@ urlpatterns = [
     path("digest/unsubscribe/<str:token>/", views.digest_unsubscribe, name="digest_unsubscribe"),
     path("data/import/", views.csv_import, name="csv_import"),
     path("data/export/<slug:kind>.csv", views.csv_export, name="csv_export"),
+    path("data/import/jobs/<int:pk>/", views.import_job, name="import_job"),
     path("people/", views.people_list, name="people"),
     path("people/new/", views.person_new, name="person_new"),
     path("people/<int:pk>/", views.person_edit, name="person_edit"),

@@ -170,7 +170,7 @@ class _Rollback(Exception):
     pass
 
 
-def import_csv(fileobj_or_path, *, name=None, dry_run=False, user=None, source="upload"):
+def import_csv(fileobj_or_path, *, name=None, dry_run=False, user=None, source="upload", progress=None):
     """Import one register CSV file (``fleet.csvio.import_csv``), then bring
     the thermal histories it made stale up to date, all in one transaction.
 
@@ -178,14 +178,15 @@ def import_csv(fileobj_or_path, *, name=None, dry_run=False, user=None, source="
     everything is checked and counted, then rolled back.  Raises
     ``fleet.csvio.CsvImportError`` with every problem found; nothing is written.
     Every import that is not a dry run is recorded (``ImportRecord``), a
-    refused one too, after its own transaction.
+    refused one too, after its own transaction.  ``progress(rows)`` is told
+    the rows read after each batch (a background import's page shows it).
     """
     from .models import ImportRecord
 
     file_name = name or getattr(fileobj_or_path, "name", None) or str(fileobj_or_path)
     try:
         with transaction.atomic():
-            report = csvio.import_csv(fileobj_or_path, name=name)
+            report = csvio.import_csv(fileobj_or_path, name=name, progress=progress)
             synced = thermal_sync()
             report.histories_started += synced.started
             report.histories_rebuilt += synced.rebuilt + synced.extended

@@ -11,7 +11,7 @@ from .reading import CsvImportError, ImportReport, _DryRun, _Errors, _Fatal, _ki
 BATCH_SIZE = 2000
 
 
-def import_csv(fileobj_or_path, *, name=None, dry_run=False) -> ImportReport:
+def import_csv(fileobj_or_path, *, name=None, dry_run=False, progress=None) -> ImportReport:
     """Import one CSV file of the fleet register, all or nothing.
 
     Parameters
@@ -23,6 +23,8 @@ def import_csv(fileobj_or_path, *, name=None, dry_run=False) -> ImportReport:
         The file's name in messages (default: the file's own name).
     dry_run : bool
         Check and count everything, then roll back.
+    progress : callable, optional
+        Called with the number of rows read so far after each batch.
 
     Returns
     -------
@@ -36,13 +38,13 @@ def import_csv(fileobj_or_path, *, name=None, dry_run=False) -> ImportReport:
     """
     f, name, close = _open(fileobj_or_path, name)
     try:
-        return _import(f, name, dry_run)
+        return _import(f, name, dry_run, progress)
     finally:
         if close:
             f.close()
 
 
-def _import(f, name, dry_run):
+def _import(f, name, dry_run, progress=None):
     records = Records(_lines(f, name), name)
     header = _read_header(records, name)
     kind = _kind_from_header(header, name)
@@ -75,6 +77,8 @@ def _import(f, name, dry_run):
                     if len(batch) >= BATCH_SIZE:
                         handler.flush(batch)
                         batch = []
+                        if progress is not None:
+                            progress(report.rows)
             except (_Fatal, StructureError) as exc:
                 errors.add(str(exc))
             if batch:

@@ -9,7 +9,7 @@ through ``front.selectors``.
 
 from ..workflows import return_verdict  # noqa: F401  (the desk's verdict, worded)
 from .bench import bench_intake, bench_reading, bench_recap, bench_release, bench_unit  # noqa: F401
-from .data import csv_export, csv_import, import_order  # noqa: F401
+from .data import csv_export, csv_import, import_job  # noqa: F401
 from .desk import check_in, check_out, desk_scan  # noqa: F401
 from .display import forecast_display, format_capacitance, hazard_words, position_plan  # noqa: F401
 from .digest import digest_send_now, digest_settings, digest_unsubscribe  # noqa: F401

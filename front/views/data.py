@@ -1,83 +1,61 @@
-"""CSV import and export (managers)."""
+"""CSV import and export (managers): small uploads at once, large ones as a
+background job with a page of its own (``front.imports``)."""
 
+from django.conf import settings
 from django.http import Http404, HttpResponse
+from django.shortcuts import get_object_or_404, redirect
 from django.utils import timezone
 from django.views.decorators.http import require_http_methods
 
 from fleet import csvio
 
-from .. import workflows
+from .. import imports
 from ..forms import CsvUploadForm
+from ..models import ImportJob
 from .access import manager_required, page
 
-CSV_KINDS = ["locations", "temperature_samples", "gear_models", "positions", "units"]
-CSV_KIND_LABELS = {
-    "locations": "Locations",
-    "temperature_samples": "Temperature samples",
-    "gear_models": "Gear models",
-    "positions": "Capacitor positions",
-    "units": "Units",
-}
-
-
-MAX_ERRORS_SHOWN = 100
-
-
-def _import_errors(exc):
-    errors = [str(e) for e in (getattr(exc, "errors", None) or [str(exc)])]
-    total = max(getattr(exc, "total", 0) or 0, len(errors))
-    shown = errors[:MAX_ERRORS_SHOWN]
-    return {"errors": shown, "more": total - len(shown)}
-
-
-def import_order(csvio, files):
-    """Files sorted into the order the imports depend on (locations first,
-    units last), the kind read from each file's header row.  A file whose
-    header cannot be read goes last (its import then fails and says why)."""
-    order = list(getattr(csvio, "IMPORT_ORDER", CSV_KINDS))
-    ranked = []
-    for position, f in enumerate(files):
-        try:
-            kind = csvio.detect_kind(f, name=f.name)
-        except csvio.CsvImportError:
-            kind = None
-        finally:
-            f.seek(0)
-        ranked.append((order.index(kind) if kind in order else len(order), position, f))
-    return [f for _, _, f in sorted(ranked, key=lambda t: t[:2])]
+CSV_KINDS = list(imports.KIND_LABELS)
+CSV_KIND_LABELS = imports.KIND_LABELS
+#: Jobs listed on the import page.
+RECENT_JOBS = 5
 
 
 @manager_required
 @require_http_methods(["GET", "POST"])
 def csv_import(request):
     outcome = None
-    if request.method == "POST" and csvio is not None:
+    if request.method == "POST":
         form = CsvUploadForm(request.POST, request.FILES)
         if form.is_valid():
-            ordered = import_order(csvio, form.cleaned_data["files"])
-            imported, failed, skipped = [], None, []
-            for index, f in enumerate(ordered):
-                try:
-                    report = workflows.import_csv(f, name=f.name, user=request.user)
-                except csvio.CsvImportError as exc:
-                    failed = {"name": f.name, **_import_errors(exc)}
-                    skipped = [g.name for g in ordered[index + 1:]]
-                    break
-                imported.append({
-                    "name": f.name,
-                    "kind": CSV_KIND_LABELS.get(report.kind, report.kind),
-                    "summary": report.summary(),
-                })
-            outcome = {"imported": imported, "failed": failed, "skipped": skipped,
-                       "order": [f.name for f in ordered]}
+            files = form.cleaned_data["files"]
+            if sum(f.size for f in files) > settings.RECAP_IMPORT_INLINE_BYTES:
+                job = imports.import_job_create(files=files, user=request.user)
+                return redirect("import_job", pk=job.pk)
+            outcome = imports.import_files(files, user=request.user)
             form = CsvUploadForm()
     else:
         form = CsvUploadForm()
     return page(request, "front/csv_import.html", {
         "form": form,
         "outcome": outcome,
-        "available": csvio is not None,
+        "available": True,
         "kinds": [(k, CSV_KIND_LABELS[k]) for k in CSV_KINDS],
+        "jobs": ImportJob.objects.order_by("-created_at")[:RECENT_JOBS],
+        "inline_mb": settings.RECAP_IMPORT_INLINE_BYTES / 1e6,
+    })
+
+
+@manager_required
+def import_job(request, pk):
+    """A background import: how far it got, then its result."""
+    job = get_object_or_404(ImportJob, pk=pk)
+    files = list(job.files.values_list("name", "size")) if not job.finished else []
+    return page(request, "front/import_job.html", {
+        "job": job,
+        "outcome": job.outcome if job.finished else None,
+        "rows": imports.import_job_progress(job),
+        "files": files,
+        "refresh_seconds": 3,
     })
 
 
