@@ -131,8 +131,10 @@ class Records:
             raise StructureError(
                 f"{where}: a double quote opens this cell on line {first} and is never closed{rest}. "
                 f"Close the quote, or write a double quote inside a cell as two (\"\").")
-        rows_inside = [first + k for k, line in enumerate(cells[column].splitlines()[1:], start=1)
-                       if _cell_count(line) >= width]
+        # A line swallowed by a stray quote is a row of its own: with its
+        # quotes taken away it has a cell for every column.
+        rows_inside = [first + k for k, line in enumerate(self._lines[1:], start=1)
+                       if _cell_count(line.replace('"', "")) >= width]
         if rows_inside or len(cells) != width:
             if rows_inside:
                 one = len(rows_inside) == 1
