@@ -8,6 +8,8 @@ Each returns PDF (or CSV) bytes, or writes them all-or-nothing to a path
 import csv
 import io
 
+from fleet.csvio.cells import guard_formula
+
 from .duelist import PARTS_UNITS, due_list, parts_csv_rows, parts_list
 from .files import ReportError, write_atomically
 from .pdf.lists import due_list_pdf_bytes, parts_list_pdf_bytes
@@ -58,5 +60,7 @@ def parts_list_csv(*, units=None, today=None):
     """(PartsList, CSV text) for the top ``units`` units of the due list."""
     pl = _parts(units if units is not None else PARTS_UNITS, today)
     out = io.StringIO()
-    csv.writer(out, lineterminator="\n").writerows(parts_csv_rows(pl))
+    # Managers open this in a spreadsheet: no cell may run as a formula.
+    csv.writer(out, lineterminator="\n").writerows([guard_formula(str(cell)) for cell in row]
+                                                   for row in parts_csv_rows(pl))
     return pl, out.getvalue()
