@@ -113,6 +113,10 @@ class TemperatureSample(models.Model):
     def __str__(self):
         return f"{self.location} {self.taken_at:%Y-%m-%d %H:%M} {self.temp_c} degC"
 
+    def clean(self):
+        if self.taken_at is not None and not EARLIEST_DATE <= self.taken_at.date() <= LATEST_DATE:
+            raise ValidationError({"taken_at": f"Give a date between {EARLIEST_DATE.year} and {LATEST_DATE.year}."})
+
 
 class GearModel(models.Model):
     class Category(models.TextChoices):
@@ -527,6 +531,17 @@ class ServiceRecord(models.Model):
 
     def __str__(self):
         return f"{self.unit.asset_tag} {self.get_kind_display().lower()} {self.performed_on:%Y-%m-%d}"
+
+    def clean(self):
+        day = self.performed_on
+        if day is None:
+            return
+        if not EARLIEST_DATE <= day <= LATEST_DATE:
+            raise ValidationError({"performed_on": f"Give a date between {EARLIEST_DATE.year} and {LATEST_DATE.year}."})
+        unit = self.unit if self.unit_id else None
+        if unit is not None and unit.year_made and day.year < unit.year_made:
+            raise ValidationError({"performed_on": f"{unit.asset_tag} was made in {unit.year_made}; it cannot have "
+                                                   f"been serviced before that."})
 
 
 class ReplacedPart(CapacitorRatings):

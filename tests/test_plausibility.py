@@ -183,3 +183,19 @@ def test_a_unit_cannot_join_the_fleet_at_the_ends_of_the_calendar(fleet):
         with pytest.raises(ValidationError) as info:
             unit.full_clean()
         assert info.value.message_dict["joined_on"] == ["Give a date between 1900 and 2100."]
+
+
+def test_samples_and_services_at_the_ends_of_the_calendar_are_refused(fleet):
+    from fleet.models import TemperatureSample
+
+    sample = TemperatureSample(location=fleet.location, taken_at=dt.datetime(1, 1, 2, tzinfo=dt.timezone.utc),
+                               temp_c=18)
+    with pytest.raises(ValidationError) as info:
+        sample.full_clean()
+    assert info.value.message_dict["taken_at"] == ["Give a date between 1900 and 2100."]
+    for day, message in ((dt.date(9999, 12, 31), "Give a date between 1900 and 2100."),
+                         (dt.date(1975, 5, 1), "NMB-0001 was made in 1981; it cannot have been serviced before that.")):
+        with pytest.raises(ValidationError) as info:
+            service_record_recap(unit_id=fleet.unit.pk, performed_on=day, replacements={"C7": {"rated_life_h": 4000}})
+        assert info.value.message_dict["performed_on"] == [message]
+    assert not UnitCapacitor.objects.filter(unit=fleet.unit, is_original=False).exists()
