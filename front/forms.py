@@ -8,6 +8,7 @@ import datetime as dt
 
 from django import forms
 from django.conf import settings
+from django.contrib.auth.validators import UnicodeUsernameValidator
 from django.utils import timezone
 
 from scheduling.models import UnitForecast
@@ -282,7 +283,7 @@ class CsvUploadForm(PlainForm):
 class PersonForm(PlainForm):
     """A login and its roles, as a manager keeps them (``fleet.people``)."""
 
-    username = forms.CharField(label="Username", max_length=150,
+    username = forms.CharField(label="Username", max_length=150, validators=[UnicodeUsernameValidator()],
                                help_text="Letters, digits and @ . + - _ only; the person signs in with it.")
     first_name = forms.CharField(label="First name", max_length=150, required=False)
     last_name = forms.CharField(label="Last name", max_length=150, required=False)

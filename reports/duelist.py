@@ -15,7 +15,7 @@ import math
 from dataclasses import dataclass, field
 
 import numpy as np
-from django.db.models import F, Q
+from django.db.models import Case, F, IntegerField, Q, When
 from django.utils import timezone
 
 from fleet.models import Unit, UnitCapacitor
@@ -70,6 +70,16 @@ class DueList:
     def need_work(self):
         return sum(1 for r in self.rows if r.priority)
 
+    @property
+    def cannot_forecast(self):
+        """Rows of units whose figures the engine cannot use (listed first)."""
+        return sum(1 for r in self.rows if r.status == UnitForecast.Status.INVALID)
+
+    @property
+    def due_only(self):
+        """Rows due within the days asked for but not among the units that need work."""
+        return len(self.rows) - self.need_work - self.cannot_forecast
+
 
 def _actions(forecast):
     rec = stored_positions(forecast)
@@ -79,13 +89,17 @@ def _actions(forecast):
 
 
 def due_forecasts(*, within_days=None, today=None):
-    """Stored forecasts on the due list, in triage order (a queryset)."""
+    """Stored forecasts on the due list, in triage order (a queryset), after
+    the units that cannot be forecast (their figures need a technician first)."""
     today = today or timezone.localdate()
     if within_days is None:
         within_days = int(active_policy().horizon_days)
     qs = UnitForecast.objects.exclude(unit__status=Unit.Status.RETIRED)
-    qs = qs.filter(Q(priority__isnull=False) | Q(due_date__lte=today + dt.timedelta(days=within_days)))
-    return qs.order_by(F("priority").asc(nulls_last=True), "due_date", "-risk", "unit__asset_tag")
+    invalid = UnitForecast.Status.INVALID
+    qs = qs.filter(Q(priority__isnull=False) | Q(due_date__lte=today + dt.timedelta(days=within_days))
+                   | Q(status=invalid))
+    cannot = Case(When(status=invalid, then=0), default=1, output_field=IntegerField())
+    return qs.order_by(cannot, F("priority").asc(nulls_last=True), "due_date", "-risk", "unit__asset_tag")
 
 
 def due_list(*, limit=None, within_days=None, today=None):

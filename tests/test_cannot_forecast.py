@@ -10,6 +10,7 @@ All makers, models and tags are invented.
 """
 
 import dataclasses
+import io
 import datetime as dt
 import json
 import logging
@@ -250,3 +251,21 @@ def test_results_that_are_not_finite_set_the_unit_aside(two_units, monkeypatch):
     run = forecast_refresh()
     assert [u.asset_tag for u in run.unforecastable] == ["NMB-0002"]
     assert run.unforecastable[0].reasons[0].startswith("C1 (supply reservoir): the forecast gave no finite damage")
+
+
+def test_the_printed_due_list_and_service_sheet_say_so(two_units):
+    from pypdf import PdfReader
+
+    from reports.duelist import due_list
+    from reports.services import due_list_pdf, sheet_pdf
+
+    forecast_refresh()
+    dl = due_list()
+    assert dl.rows[0].asset_tag == "NMB-0002" and dl.cannot_forecast == 1
+    _, data = due_list_pdf()
+    text = " ".join(page.extract_text() for page in PdfReader(io.BytesIO(data)).pages)
+    text = " ".join(text.split())  # lines wrap where the page ends
+    assert "1 cannot be forecast until their figures are corrected" in text and "fix figures" in text
+    _, data = sheet_pdf(asset_tag="NMB-0002")
+    text = " ".join(page.extract_text() for page in PdfReader(io.BytesIO(data)).pages)
+    assert "Cannot forecast: the life engine cannot use this unit's figures" in " ".join(text.split())

@@ -27,8 +27,11 @@ def due_list_pdf_bytes(dl, *, title="Due list"):
     right = f"printed {fmt.date(dl.today)}"
     story = [SheetStart("due", left, right), _p(f"{escape(title)}", "title"), Spacer(1, 2 * mm)]
     summary = (f"{dl.need_work} units need work (priority 1 first: the chance of a fault during the next hire, "
-               f"weighted by what the failing parts do to it); {len(dl.rows) - dl.need_work} more are due within "
+               f"weighted by what the failing parts do to it); {dl.due_only} more are due within "
                f"{dl.within_days} days.")
+    if dl.cannot_forecast:
+        summary += (f" {dl.cannot_forecast} cannot be forecast until their figures are corrected; they come "
+                    f"first.")
     if dl.total > len(dl.rows):
         summary += f" The first {len(dl.rows)} of {dl.total} are printed; the app lists them all."
     if dl.computed_at:
@@ -41,6 +44,13 @@ def due_list_pdf_bytes(dl, *, title="Due list"):
     widths = [w for _, w in DUE_COLUMNS]
     data, style = [[wrap(h, w - 5, CELL_SIZE, FONT_BOLD) for h, w in DUE_COLUMNS]], _grid_style()
     for i, r in enumerate(dl.rows, start=1):
+        if r.status == "invalid":
+            data.append(["", r.asset_tag, wrap(r.model, widths[2] - 5, CELL_SIZE, max_lines=2),
+                         wrap(r.location, widths[3] - 5, CELL_SIZE, max_lines=2),
+                         r.unit_status.replace("Out on hire", "out"),
+                         wrap(r.status_label, widths[5] - 5, CELL_SIZE, max_lines=2), "fix figures", "", "", "", "",
+                         wrap(r.reason, widths[11] - 5, CELL_SIZE, max_lines=2)])
+            continue
         data.append([
             str(r.priority or ""), r.asset_tag, wrap(r.model, widths[2] - 5, CELL_SIZE, max_lines=2),
             wrap(r.location, widths[3] - 5, CELL_SIZE, max_lines=2), r.unit_status.replace("Out on hire", "out"),

@@ -44,6 +44,11 @@ def _summary(sheet):
     out = [_p("Forecast and exposure", "h2")]
     if f is None:
         out.append(_p("Not yet forecast: the figures below fill in after the next refresh."))
+    elif f["status"] == "invalid":
+        out.append(_p(f"<b>{_e(f['status_label'])}</b>: the life engine cannot use this unit's figures, so there is "
+                      f"no risk, due date or action for its parts; correct the figures first."))
+        out.extend(Paragraph(_e(r), styles()["bullet"], bulletText="\u2013") for r in f["reasons"][:6])
+        out.append(_p(f"Worked out {_e(fmt.moment(f['computed_at']))}.", "small"))
     else:
         first = f"<b>{_e(f['status_label'])}</b> \u00b7 act by <b>{_e(f['act_by_words'])}</b>"
         if f["priority"]:

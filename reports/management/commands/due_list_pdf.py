@@ -23,5 +23,6 @@ class Command(BaseCommand):
         except ReportError as exc:
             raise CommandError(str(exc)) from None
         self.stdout.write(f"Wrote the due list to {out}: {dl.need_work} units need work, "
-                          f"{len(dl.rows) - dl.need_work} more due within {dl.within_days} days"
+                          f"{dl.due_only} more due within {dl.within_days} days"
+                          + (f", {dl.cannot_forecast} cannot be forecast" if dl.cannot_forecast else "")
                           + (f" (first {len(dl.rows)} of {dl.total})" if dl.total > len(dl.rows) else "") + ".")
