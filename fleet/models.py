@@ -8,7 +8,6 @@ Rules about a row's own fields live here (``clean``); anything that touches
 several rows lives in ``fleet/services.py``.
 """
 
-import datetime as dt
 import math
 
 from django.conf import settings
@@ -19,15 +18,12 @@ from django.db.models import F, Q
 from django.utils import timezone
 from simple_history.models import HistoricalRecords
 
+from .dates import EARLIEST_DATE, LATEST_DATE, before_unit, outside_register  # noqa: F401  (imported from here too)
+
 RATED_TEMP_MIN_C = -55.0
 RATED_TEMP_MAX_C = 150.0
 AMBIENT_MIN_C = -40.0
 AMBIENT_MAX_C = 85.0
-#: The first and last day any date of the register may fall on: before the
-#: oldest gear and well past any plan, and far from the ends of the calendar,
-#: where time-zone arithmetic overflows.
-EARLIEST_DATE = dt.date(1900, 1, 1)
-LATEST_DATE = dt.date(2100, 12, 31)
 
 asset_tag_validator = RegexValidator(
     r"^[A-Z0-9][A-Z0-9-]{1,23}$",
@@ -114,8 +110,8 @@ class TemperatureSample(models.Model):
         return f"{self.location} {self.taken_at:%Y-%m-%d %H:%M} {self.temp_c} degC"
 
     def clean(self):
-        if self.taken_at is not None and not EARLIEST_DATE <= self.taken_at.date() <= LATEST_DATE:
-            raise ValidationError({"taken_at": f"Give a date between {EARLIEST_DATE.year} and {LATEST_DATE.year}."})
+        if outside_register(self.taken_at):
+            raise ValidationError({"taken_at": outside_register(self.taken_at)})
 
 
 class GearModel(models.Model):
@@ -389,8 +385,8 @@ class Unit(models.Model):
         return self.asset_tag
 
     def clean(self):
-        if self.joined_on and not EARLIEST_DATE <= self.joined_on <= LATEST_DATE:
-            raise ValidationError({"joined_on": f"Give a date between {EARLIEST_DATE.year} and {LATEST_DATE.year}."})
+        if outside_register(self.joined_on):
+            raise ValidationError({"joined_on": outside_register(self.joined_on)})
         if self.joined_on and self.year_made and self.joined_on.year < self.year_made:
             raise ValidationError({"joined_on": "A unit cannot join the fleet before it was made."})
 
@@ -476,21 +472,14 @@ class Rental(models.Model):
         return (self.in_at - self.out_at).total_seconds() / 3600.0
 
     def clean(self):
-        errors = {}
-        for name in ("out_at", "in_at"):
-            moment = getattr(self, name)
-            if moment is not None and not EARLIEST_DATE <= moment.date() <= LATEST_DATE:
-                errors[name] = f"Give a date between {EARLIEST_DATE.year} and {LATEST_DATE.year}."
+        errors = {name: outside_register(getattr(self, name)) for name in ("out_at", "in_at")
+                  if outside_register(getattr(self, name))}
         if errors:
             raise ValidationError(errors)
-        unit = self.unit if self.unit_id else None
-        if unit is not None and self.out_at is not None:
-            local_day = timezone.localdate(self.out_at)
-            if unit.joined_on and local_day < unit.joined_on:
-                errors["out_at"] = (f"{unit.asset_tag} joined the fleet on {unit.joined_on.day} {unit.joined_on:%b %Y}; "
-                                    f"it cannot have gone out before that.")
-            elif unit.year_made and local_day.year < unit.year_made:
-                errors["out_at"] = f"{unit.asset_tag} was made in {unit.year_made}; it cannot have gone out before that."
+        early = before_unit(self.unit if self.unit_id else None,
+                            self.out_at and timezone.localdate(self.out_at), happened="gone out", joined_too=True)
+        if early:
+            errors["out_at"] = early
         if self.in_at is not None:
             if self.in_at <= self.out_at:
                 errors["in_at"] = "Check-in must come after check-out."
@@ -533,15 +522,10 @@ class ServiceRecord(models.Model):
         return f"{self.unit.asset_tag} {self.get_kind_display().lower()} {self.performed_on:%Y-%m-%d}"
 
     def clean(self):
-        day = self.performed_on
-        if day is None:
-            return
-        if not EARLIEST_DATE <= day <= LATEST_DATE:
-            raise ValidationError({"performed_on": f"Give a date between {EARLIEST_DATE.year} and {LATEST_DATE.year}."})
-        unit = self.unit if self.unit_id else None
-        if unit is not None and unit.year_made and day.year < unit.year_made:
-            raise ValidationError({"performed_on": f"{unit.asset_tag} was made in {unit.year_made}; it cannot have "
-                                                   f"been serviced before that."})
+        problem = outside_register(self.performed_on) or before_unit(
+            self.unit if self.unit_id else None, self.performed_on, happened="been serviced")
+        if problem:
+            raise ValidationError({"performed_on": problem})
 
 
 class ReplacedPart(CapacitorRatings):

@@ -151,6 +151,6 @@ def test_the_came_back_at_message_is_in_local_time(client, users, fleet):
     Unit.objects.filter(pk=fleet.unit.pk).update(status=Unit.Status.AVAILABLE)
     client.force_login(users.desk)
     response = client.post(URL, {"asset_tag": "NMB-0001", "job_ref": "JOB-2", "expected_ambient_c": "24",
-                                 "out_at": "2024-07-12T17:00", "send_anyway": "on"})
+                                 "out_at": "2024-07-12T17:00", "override_reason": "Workshop agreed"})
     assert response.status_code == 200
     assert "NMB-0001 came back at 2024-07-12 17:30; it cannot go out before that." in response.content.decode()
