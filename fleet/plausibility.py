@@ -12,13 +12,13 @@ import math
 
 
 def capacitance_words(uf):
-    """A capacitance in uF as parts are marked, to two figures."""
+    """A capacitance given in uF as parts are marked, to two figures: ``47 µF``, ``1 pF``."""
     from .values import format_capacitance
 
     try:
-        return format_capacitance(uf, significant=2)
+        return format_capacitance(uf, significant=2).replace("uF", "\u00b5F")
     except ValueError:
-        return f"{uf:g} uF"
+        return f"{uf:g} \u00b5F"
 
 
 def ratings_implausible(part, ripple_current_a=0.0):
@@ -48,7 +48,7 @@ def ratings_implausible(part, ripple_current_a=0.0):
             f"{capacitance_words(high)}); check the capacitance and its unit.")}
     if bad["esr"][0]:
         field = "esr_ohm" if part.esr_ohm is not None else "tan_delta"
-        given = f"ESR {part.esr_ohm:g} ohm" if part.esr_ohm is not None else f"tan delta {part.tan_delta:g}"
+        given = f"ESR {part.esr_ohm:g} \u03a9" if part.esr_ohm is not None else f"tan delta {part.tan_delta:g}"
         return {field: (
             f"{given} with {capacitance_words(part.capacitance_uf)} means tan delta {bad['tan_delta'][0]:.2g} at "
             f"120 Hz, far from real parts (about 0.01 to 0.3); check the figure and its unit.")}
@@ -56,7 +56,7 @@ def ratings_implausible(part, ripple_current_a=0.0):
         rise = bad["ripple_rise_k"][0]
         heat = f"{rise:,.0f} K" if math.isfinite(rise) else "beyond measure"
         return {"ripple_current_a": (
-            f"{ripple_current_a:g} A of ripple through {esr:.3g} ohm would heat this {size} can {heat} above the "
+            f"{ripple_current_a:g} A of ripple through {esr:.3g} \u03a9 would heat this {size} can {heat} above the "
             f"air around it, which no part survives (rated ripple heats a part by about 5 K); check the ripple "
             f"current, the ESR and the capacitance.")}
     return {}

@@ -128,7 +128,8 @@ def rental_open(*, unit_id, job_ref, out_at=None, expected_ambient_c=25.0, user=
                            "the workshop must release it first.")
     last = Rental.objects.filter(unit_id=unit.pk, in_at__isnull=False).order_by("-in_at").first()
     if last is not None and out_at < last.in_at:
-        raise ServiceError(f"{unit.asset_tag} came back at {timezone.localtime(last.in_at):%Y-%m-%d %H:%M}; "
+        back = timezone.localtime(last.in_at)
+        raise ServiceError(f"{unit.asset_tag} came back at {back.day} {back:%b %Y %H:%M}; "
                            f"it cannot go out before that.")
     rental = Rental(unit=unit, job_ref=job_ref.strip(), out_at=out_at, expected_ambient_c=expected_ambient_c,
                     checked_out_by=user)

@@ -209,11 +209,11 @@ def input_problems(fa):
 
 
 def _capacitance_words(farads):
-    """``1 pF``, ``470 nF``, ``2200 uF``: three figures in the unit parts are marked in."""
+    """``1 pF``, ``470 nF``, ``2200 µF``: up to four figures, in the unit parts are marked in."""
     for scale, unit in ((1e-9, "pF"), (1e-6, "nF")):
         if farads < scale:
-            return f"{farads / scale * 1e3:.3g} {unit}"
-    return f"{farads * 1e6:.3g} uF"
+            return f"{farads / scale * 1e3:.4g} {unit}"
+    return f"{farads * 1e6:.4g} \u00b5F"
 
 
 def _implausible(found, fa, k, bad):
@@ -235,7 +235,7 @@ def _implausible(found, fa, k, bad):
         f"{name(i)}: {_capacitance_words(fa.capacitance_f[i])} at {fa.rated_voltage_v[i]:g} V in a "
         f"{fa.diameter_mm[i]:g} x {fa.length_mm[i]:g} mm can is no real part's capacitance"))
     found.capacitors(flagged(esr), lambda i: (
-        f"{name(i)}: an ESR of {fa.esr0_ohm[i]:.3g} ohm with {_capacitance_words(fa.capacitance_f[i])} means "
+        f"{name(i)}: an ESR of {fa.esr0_ohm[i]:.3g} \u03a9 with {_capacitance_words(fa.capacitance_f[i])} means "
         f"tan delta {bad['tan_delta'][j[i]]:.2g} at 120 Hz, no real part's figure"))
     found.capacitors(flagged(ripple), lambda i: (
         f"{name(i)}: its ripple current would heat it {bad['ripple_rise_k'][j[i]]:.3g} K above the air around "

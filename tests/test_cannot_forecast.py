@@ -177,7 +177,7 @@ def test_input_checks_name_the_part_and_what_is_wrong(two_units):
     for name, value, words in (
         ("capacitance_f", np.nan, "C1 (supply reservoir): its capacitance is missing, not finite or not above zero"),
         ("rated_life_h", 0.0, "C1 (supply reservoir): its rated endurance is missing, not finite or not above zero"),
-        ("esr0_ohm", 1e4, "C1 (supply reservoir): an ESR of 1e+04 ohm with 2.2e+03 uF means tan delta 1.7e+04 at "
+        ("esr0_ohm", 1e4, "C1 (supply reservoir): an ESR of 1e+04 Ω with 2200 µF means tan delta 1.7e+04 at "
                           "120 Hz, no real part's figure"),
         ("esr0_ohm", 3.0, "C1 (supply reservoir): its ripple current would heat it 83 K above the air"),
     ):

@@ -91,13 +91,13 @@ def models(db, tmp_path):
 @pytest.mark.parametrize("row, message", [
     ("C3,general,1p,25,85,1000,0.9,,6.3,11,axial,,,12",
      "positions.csv, row 2, column capacitance: 1 pF at 25 V in a 6.3 x 11 mm can is far from what an aluminium "
-     "electrolytic capacitor of that size holds (about 14 nF to 1400 uF); check the capacitance and its unit."),
+     "electrolytic capacitor of that size holds (about 14 nF to 1400 µF); check the capacitance and its unit."),
     ("C3,general,47u,25,85,1000,900,,6.3,11,axial,,,12",
-     "positions.csv, row 2, column esr_ohm: ESR 900 ohm with 47 uF means tan delta 32 at 120 Hz, far from real "
+     "positions.csv, row 2, column esr_ohm: ESR 900 Ω with 47 µF means tan delta 32 at 120 Hz, far from real "
      "parts"),
     ("C3,general,47u,25,85,1000,0.9,,6.3,11,axial,3,,12",
      # refs §4: 9 A^2 x 0.9 ohm over 2.80 cm^2 at 1.5e-3 W/(cm^2 K).
-     "positions.csv, row 2, column ripple_current_a: 3 A of ripple through 0.9 ohm would heat this 6.3 x 11 mm "
+     "positions.csv, row 2, column ripple_current_a: 3 A of ripple through 0.9 Ω would heat this 6.3 x 11 mm "
      "can 1,928 K above the air around it, which no part survives"),
 ])
 def test_an_import_refuses_a_part_no_one_makes(models, tmp_path, row, message):

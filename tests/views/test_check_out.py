@@ -153,4 +153,4 @@ def test_the_came_back_at_message_is_in_local_time(client, users, fleet):
     response = client.post(URL, {"asset_tag": "NMB-0001", "job_ref": "JOB-2", "expected_ambient_c": "24",
                                  "out_at": "2024-07-12T17:00", "override_reason": "Workshop agreed"})
     assert response.status_code == 200
-    assert "NMB-0001 came back at 2024-07-12 17:30; it cannot go out before that." in response.content.decode()
+    assert "NMB-0001 came back at 12 Jul 2024 17:30; it cannot go out before that." in response.content.decode()
