@@ -249,6 +249,9 @@ else:
     }
     CELERY_RESULT_BACKEND = None
 CELERY_TASK_ALWAYS_EAGER = env_bool("CELERY_TASK_ALWAYS_EAGER", False)
+# The nightly refresh sends its batches to all workers (a chord; needs the
+# Redis result backend) when on; else one worker goes through the batches.
+RECAP_PARALLEL_REFRESH = env_bool("RECAP_PARALLEL_REFRESH", bool(REDIS_URL))
 # The cache carries a background import's rows-read figure to the page (the
 # import's own transaction holds SQLite's write lock): Redis with REDIS_URL,
 # else files under var/cache that every process on the machine reads.

@@ -93,6 +93,8 @@ def unit_populate(*, units, positions_by_model=None):
                 )
             )
     UnitCapacitor.objects.bulk_create(rows, batch_size=2000)
+    if rows:  # fitted parts are exposure records: the engine repacks them
+        units_mark_changed(unit_ids={r.unit_id for r in rows})
     return len(rows)
 
 

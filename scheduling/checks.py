@@ -51,7 +51,7 @@ READING_FIELDS = (
 )
 SHARED_FIELDS = (
     "model_id", "model_rise_k", "model_hours_per_day", "pos_id", "pos_designator", "pos_role", "pos_ripple_a",
-    "pos_partner", "pos_circuit", "snap_powered", "snap_unpowered",
+    "pos_partner", "pos_circuit", "snap_powered", "snap_unpowered", "model_means",
 )
 
 #: What the arithmetic raises when it meets a figure it cannot use.

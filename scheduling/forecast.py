@@ -219,26 +219,73 @@ def _with_feedback(fa, powered_damage, powered_hours, ripple_a, opts, unpowered_
     return out
 
 
-def projected_use(fa):
+USE_SUM_NAMES = ("units", "powered", "out", "ambient_weighted", "ambient_weight", "hire_units", "hire_powered",
+                 "hire_out")
+
+
+def model_use_sums(unit_model, n_models, powered_h, out_h, ambient_c, hires):
+    """Per gear model, the sums behind its mean recent use (step 3), over the
+    units with enough history (``powered_h`` not NaN): a dict of arrays over
+    models, keys ``USE_SUM_NAMES``.  Sums of several batches of units add up
+    to the sums of the fleet (``model_use_means`` turns them into means)."""
+    p, o, a, n = (np.asarray(x, dtype=float) for x in (powered_h, out_h, ambient_c, hires))
+    m = np.asarray(unit_model, dtype=np.int64)
+    known = ~np.isnan(p)
+    has_a = known & ~np.isnan(a)
+    o_kept = np.clip(np.where(known, o, 0.0), np.where(known, p, 0.0), HOURS_PER_YEAR)
+    hired = known & ~np.isnan(n) & (n > 0)
+    safe_n = np.where(hired, n, 1.0)
+
+    def by_model(which, weights=None):
+        return np.bincount(m[which], weights=None if weights is None else weights[which],
+                           minlength=n_models).astype(float)
+
+    return {
+        "units": by_model(known), "powered": by_model(known, p), "out": by_model(known, o),
+        "ambient_weighted": by_model(has_a, a * p), "ambient_weight": by_model(has_a, p),
+        "hire_units": by_model(hired), "hire_powered": by_model(hired, p / safe_n),
+        "hire_out": by_model(hired, o_kept / safe_n),
+    }
+
+
+def model_use_means(sums):
+    """Means per gear model from ``model_use_sums`` (NaN where no unit has
+    the history): powered and out hours per year, venue ambient [degC], and
+    powered and out hours of one hire."""
+    def ratio(a, b):
+        with np.errstate(invalid="ignore", divide="ignore"):
+            return np.where(b > 0, a / np.where(b > 0, b, 1.0), np.nan)
+
+    return {
+        "powered_h_per_year": ratio(sums["powered"], sums["units"]),
+        "out_h_per_year": ratio(sums["out"], sums["units"]),
+        "ambient_c": ratio(sums["ambient_weighted"], sums["ambient_weight"]),
+        "hire_powered_h": ratio(sums["hire_powered"], sums["hire_units"]),
+        "hire_out_h": ratio(sums["hire_out"], sums["hire_units"]),
+    }
+
+
+def _model_means(fa):
+    """The gear models' means: the fleet's (``fa.model_means``, from a first
+    pass or the last fleet refresh) when given, else those of ``fa``'s units."""
+    if fa.model_means is not None:
+        return fa.model_means
+    return model_use_means(model_use_sums(fa.unit_model, fa.model_id.size, fa.use_powered_h_per_year,
+                                          fa.use_out_h_per_year, fa.use_ambient_c, fa.use_hires_per_year))
+
+
+def projected_use(fa, means=None):
     """Per unit: powered hours per year, hours out per year, venue ambient [degC]
     (step 3); fills units without enough history from their gear model."""
+    means = means or _model_means(fa)
     p = fa.use_powered_h_per_year.copy()
     o = fa.use_out_h_per_year.copy()
     a = fa.use_ambient_c.copy()
     known = ~np.isnan(p)
     n_models = fa.model_id.size
-    count = np.bincount(fa.unit_model[known], minlength=n_models).astype(float)
-    mean_p = np.bincount(fa.unit_model[known], weights=p[known], minlength=n_models)
-    mean_o = np.bincount(fa.unit_model[known], weights=o[known], minlength=n_models)
-    has_a = known & ~np.isnan(a)
-    wa = np.bincount(fa.unit_model[has_a], weights=(a * p)[has_a], minlength=n_models)
-    wp = np.bincount(fa.unit_model[has_a], weights=p[has_a], minlength=n_models)
-    with np.errstate(invalid="ignore", divide="ignore"):
-        mean_p = np.where(count > 0, mean_p / np.maximum(count, 1), np.nan)
-        mean_o = np.where(count > 0, mean_o / np.maximum(count, 1), np.nan)
-        mean_a = np.where(wp > 0, wa / np.where(wp > 0, wp, 1), np.nan)
     default_p = fa.model_hours_per_day * DEFAULT_HIRE_DAYS_PER_YEAR
     default_o = np.full(n_models, DEFAULT_HIRE_DAYS_PER_YEAR * 24.0)
+    mean_p, mean_o, mean_a = means["powered_h_per_year"], means["out_h_per_year"], means["ambient_c"]
     model_p = np.where(np.isnan(mean_p), default_p, mean_p)
     model_o = np.where(np.isnan(mean_o), default_o, mean_o)
     model_a = np.where(np.isnan(mean_a), DEFAULT_VENUE_AMBIENT_C, mean_a)
@@ -249,21 +296,19 @@ def projected_use(fa):
     return p, o, a
 
 
-def projected_hire(fa, powered_h_per_year, out_h_per_year):
+def projected_hire(fa, powered_h_per_year, out_h_per_year, means=None):
     """Per unit: powered hours and hours out of one typical hire, from its
     last twelve months (hours over hires), else its gear model's units, else
     ``DEFAULT_HIRE_LENGTH_DAYS`` at the model's powered hours per day."""
+    means = means or _model_means(fa)
     n = fa.use_hires_per_year
     known = ~np.isnan(n) & (n > 0)
-    n_models = fa.model_id.size
     with np.errstate(invalid="ignore", divide="ignore"):
         per_p = np.where(known, powered_h_per_year / np.where(known, n, 1.0), np.nan)
         per_o = np.where(known, out_h_per_year / np.where(known, n, 1.0), np.nan)
-        count = np.bincount(fa.unit_model[known], minlength=n_models).astype(float)
-        mean_p = np.bincount(fa.unit_model[known], weights=per_p[known], minlength=n_models) / count
-        mean_o = np.bincount(fa.unit_model[known], weights=per_o[known], minlength=n_models) / count
-    model_p = np.where(count > 0, mean_p, fa.model_hours_per_day * DEFAULT_HIRE_LENGTH_DAYS)
-    model_o = np.where(count > 0, mean_o, DEFAULT_HIRE_LENGTH_DAYS * 24.0)
+    mean_p, mean_o = means["hire_powered_h"], means["hire_out_h"]
+    model_p = np.where(np.isnan(mean_p), fa.model_hours_per_day * DEFAULT_HIRE_LENGTH_DAYS, mean_p)
+    model_o = np.where(np.isnan(mean_o), DEFAULT_HIRE_LENGTH_DAYS * 24.0, mean_o)
     hire_p = np.where(known, per_p, model_p[fa.unit_model])
     hire_o = np.where(known, per_o, model_o[fa.unit_model])
     return hire_p, np.maximum(hire_o, hire_p)
@@ -314,7 +359,8 @@ def compute(fa, *, today, policy=None, options=None):
     d_hist = d_pow + d_unp
 
     # 3. rate of damage per day at the projected use
-    p_h, o_h, amb_c = projected_use(fa)
+    means = _model_means(fa)
+    p_h, o_h, amb_c = projected_use(fa, means)
     store_frac = np.maximum(1.0 - o_h / HOURS_PER_YEAR, 0.0)
     esr_now_for_rate = fa.esr0_ohm
     if opts.esr_feedback:
@@ -326,7 +372,7 @@ def compute(fa, *, today, policy=None, options=None):
     per_year += _unpowered_per_year(fa, (o_h - p_h), amb_c, store_frac, opts)
     rate = per_year / DAYS_PER_YEAR
     # What one typical hire adds: its powered hours hot, the rest of it off at the venue.
-    hire_p, hire_o = projected_hire(fa, p_h, o_h)
+    hire_p, hire_o = projected_hire(fa, p_h, o_h, means)
     hire_damage = hire_p[ui] * powered_per_h + (hire_o - hire_p)[ui] * _inverse_life(L0, T0, amb_c[ui], opts)
 
     # 2. use since the last count, projected

@@ -7,7 +7,6 @@ million model instances or tuples.  Everything else is small.
 """
 
 import datetime as dt
-import itertools
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -20,10 +19,11 @@ from fleet.models import GearModel, MaintenancePolicy, Position, Reading, Rental
 from . import histogram as H
 from . import physics
 from .forecast import ROLE_CODES, date_to_day
-from .models import HistogramSnapshot, ThermalHistory
+from . import recent as R
+from .models import HistogramSnapshot, ModelUse, ThermalHistory
+from .parts import CAPACITOR_ROW, as_columns, is_pack, read_rows, unpack_many
 from .thermal import location_monthly_temps
 
-CHUNK_ROWS = 20_000
 
 
 @dataclass
@@ -46,6 +46,7 @@ class FleetArrays:
     use_out_h_per_year: np.ndarray
     use_ambient_c: np.ndarray
     use_hires_per_year: np.ndarray       # hires closed in the last twelve months (NaN: too little history)
+    # the gear models' mean recent use (forecast.model_use_means); None: from these units
     # gear models
     model_id: np.ndarray
     model_rise_k: np.ndarray
@@ -71,6 +72,7 @@ class FleetArrays:
     pos_ripple_a: np.ndarray
     pos_partner: np.ndarray         # index into positions, -1 for none
     pos_circuit: dict = field(default_factory=dict)  # name -> array over positions (NaN if unset)
+    model_means: dict = None
     # snapshots
     snap_powered: np.ndarray = None
     snap_unpowered: np.ndarray = None
@@ -107,66 +109,12 @@ def _f(x):
     return np.nan if x is None else float(x)
 
 
-#: One capacitor row as read from the database (NULLs come back as -1).
-CAPACITOR_ROW = np.dtype([
-    ("id", "<i8"), ("unit_id", "<i8"), ("position_id", "<i8"), ("capacitance_uf", "<f8"),
-    ("rated_voltage_v", "<f8"), ("rated_temp_c", "<f8"), ("rated_life_h", "<f8"), ("esr_ohm", "<f8"),
-    ("tan_delta", "<f8"), ("diameter_mm", "<f8"), ("length_mm", "<f8"), ("installed_day", "<f8"),
-    ("is_original", "?"),
-])
-
-
-def _days_since_epoch_sql(column):
-    """SQL for a date column as days since 1970-01-01."""
-    if connection.vendor == "postgresql":
-        return f"({column} - DATE '1970-01-01')"
-    return f"(julianday({column}) - 2440587.5)"
-
-
-def _capacitor_sql(unit_filter_sql):
-    qn = connection.ops.quote_name
-    t = UnitCapacitor._meta.db_table
-    select = []
-    for name in CAPACITOR_ROW.names:
-        col = qn(name)
-        if name in ("esr_ohm", "tan_delta"):
-            col = f"COALESCE({col}, -1.0)"
-        elif name == "installed_day":
-            col = _days_since_epoch_sql(qn("installed_on"))  # a number: no per-row date conversion
-        select.append(col)
-    sql = f"SELECT {', '.join(select)} FROM {qn(t)}"
-    if unit_filter_sql:
-        sql += f" WHERE {qn('unit_id')} IN ({unit_filter_sql})"
-    sql += f" ORDER BY {qn('unit_id')}, {qn('id')}"
-    return sql
-
-
 def read_capacitors(unit_ids=None, bare=False):
-    """Read the unit capacitor rows in chunks into one structured array.
-
-    The chunks go from the cursor straight into one numpy array
-    (``np.fromiter`` over the row tuples), so memory is the array plus one
-    chunk of tuples.
-    ``bare=True`` only fetches the rows (the benchmark's floor) and returns
-    their number.
-    """
-    ids_sql = None
-    params = []
-    if unit_ids is not None:
-        ids_sql = ", ".join(["%s"] * len(unit_ids)) or "NULL"
-        params = list(unit_ids)
-    with connection.cursor() as cursor:
-        cursor.execute(_capacitor_sql(ids_sql), params)
-        chunks = iter(lambda: cursor.fetchmany(CHUNK_ROWS), [])
-        if bare:
-            return sum(len(rows) for rows in chunks)
-        # One array filled straight from the chunks as they arrive (numpy grows
-        # it); only one chunk of row tuples exists at a time.
-        arr = np.fromiter(itertools.chain.from_iterable(chunks), dtype=CAPACITOR_ROW)
-    out = {name: np.ascontiguousarray(arr[name]) for name in CAPACITOR_ROW.names}
-    for name in ("esr_ohm", "tan_delta"):
-        out[name] = np.where(out[name] < 0, np.nan, out[name])
-    return out
+    """The unit capacitor rows as columns (NULL figures as NaN), read with a
+    plain cursor in chunks (``parts.read_rows``).  ``bare=True`` only fetches
+    the rows and returns their number (the benchmark's floor)."""
+    rows = read_rows(unit_ids, bare=bare)
+    return rows if bare else as_columns(rows)
 
 
 class HoursBetween(Func):
@@ -227,76 +175,165 @@ def _index_of(sorted_ids, ids):
     return np.where(sorted_ids[k] == ids, k, -1).astype(np.int64)
 
 
-def load_fleet(*, unit_ids=None, today, min_history_days=180):
-    """Everything the engine needs, as arrays (see FleetArrays)."""
+def _unit_filter(unit_ids, id_range, column="id"):
+    """SQL and parameters restricting ``column`` to some unit ids, or to an
+    inclusive id range (a batch of the fleet refresh), or nothing."""
     qn = connection.ops.quote_name
-    ids_sql, params = "", []
     if unit_ids is not None:
-        ids_sql = f" AND {qn('id')} IN ({', '.join(['%s'] * len(unit_ids)) or 'NULL'})"
-        params = list(unit_ids)
-    units = _raw(
+        return f" AND {qn(column)} IN ({', '.join(['%s'] * len(unit_ids)) or 'NULL'})", list(unit_ids)
+    if id_range is not None:
+        return f" AND {qn(column)} BETWEEN %s AND %s", [int(id_range[0]), int(id_range[1])]
+    return "", []
+
+
+def unit_rows(*, unit_ids=None, id_range=None):
+    """The units the engine forecasts (not retired), by id: (id, asset tag,
+    gear model id, home location id, year made, joined on as text, records
+    version)."""
+    qn = connection.ops.quote_name
+    where, params = _unit_filter(unit_ids, id_range)
+    return _raw(
         f"SELECT {qn('id')}, {qn('asset_tag')}, {qn('gear_model_id')}, {qn('home_location_id')}, "
-        f"{qn('year_made')}, CAST({qn('joined_on')} AS TEXT) FROM {qn(Unit._meta.db_table)} "
-        f"WHERE {qn('status')} <> %s{ids_sql} ORDER BY {qn('id')}",
+        f"{qn('year_made')}, CAST({qn('joined_on')} AS TEXT), {qn('records_version')} "
+        f"FROM {qn(Unit._meta.db_table)} WHERE {qn('status')} <> %s{where} ORDER BY {qn('id')}",
         [Unit.Status.RETIRED, *params],
     )
+
+
+def history_rows(*, unit_ids=None, id_range=None, columns=("powered", "unpowered", "accounted_until",
+                                                           "last_powered_at", "parts", "recent", "parts_version")):
+    """{unit id: row} of the thermal histories (the columns asked for, in order)."""
+    qn = connection.ops.quote_name
+    where, params = _unit_filter(unit_ids, id_range, "unit_id")
+    cast = {"accounted_until", "last_powered_at"}
+    cols = ", ".join(f"CAST({qn(c)} AS TEXT)" if c in cast else qn(c) for c in columns)
+    rows = _raw(f"SELECT {qn('unit_id')}, {cols} FROM {qn(ThermalHistory._meta.db_table)} WHERE 1 = 1{where}",
+                params)
+    return {r[0]: r[1:] for r in rows}
+
+
+def use_arrays(units, histories, *, today, min_history_days, joined_day=None):
+    """Per unit (rows of ``unit_rows``): powered hours, hours out, venue
+    ambient and hires over the last twelve months, NaN for units in the
+    fleet less than ``min_history_days``.  From each unit's packed recent
+    hires (``histories``: ``history_rows`` with the recent pack and its
+    version) when current; the hires table for the rest (one grouped query)."""
+    n = len(units)
+    joined_day = _days_from_text([u[5] for u in units]) if joined_day is None else joined_day
+    since = dt.datetime.combine(today - dt.timedelta(days=365), dt.time(0), tzinfo=dt.timezone.utc)
+    since_day = since.timestamp() / 86400.0
+    blobs, packed = [], np.zeros(n, dtype=bool)
+    for k, u in enumerate(units):
+        h = histories.get(u[0])
+        if h is not None and h[-1] == u[6] and R.is_pack(h[-2]):
+            blobs.append(bytes(h[-2]))
+            packed[k] = True
+    use_p, use_o, use_a, use_n = (np.full(n, np.nan) for _ in range(4))
+    if blobs:
+        complete = R.complete_from_many(blobs) <= since_day
+        rows = np.flatnonzero(packed)
+        packed[rows[~complete]] = False
+        blobs = [b for b, ok in zip(blobs, complete) if ok]
+        rows = rows[complete]
+        use_p[rows], use_o[rows], use_a[rows], use_n[rows] = R.window_sums(blobs, since_day)
+        have = rows
+    else:
+        have = np.zeros(0, dtype=np.int64)
+    left = np.flatnonzero(~packed)
+    if left.size:
+        ids = [units[k][0] for k in left.tolist()]
+        use = recent_use(None if len(ids) > 30000 else ids, today)
+        for k in left.tolist():
+            p, o, a, hires = use.get(units[k][0], (0.0, 0.0, np.nan, 0))
+            use_p[k], use_o[k], use_a[k], use_n[k] = p, o, a, hires
+        have = np.union1d(have, left)
+    settled = (date_to_day(today) - joined_day) >= min_history_days
+    for x in (use_p, use_o, use_a, use_n):
+        x[~settled] = np.nan
+    # Units in the fleet long enough but with no hires: a real zero, not unknown.
+    for x in (use_p, use_o, use_n):
+        x[settled & np.isnan(x)] = 0.0
+    return use_p, use_o, use_a, use_n
+
+
+def _fitted_parts(units, histories, unit_ids_arr):
+    """The capacitor rows of ``units`` as columns, from the packs of units
+    whose pack is current, the rows of the rest (one query)."""
+    blobs, missing = [], []
+    for u in units:
+        h = histories.get(u[0])
+        if h is not None and h[-1] == u[6] and is_pack(h[-3]):
+            blobs.append(bytes(h[-3]))
+        else:
+            missing.append(u[0])
+    arr = unpack_many(blobs) if blobs else np.zeros(0, dtype=CAPACITOR_ROW)
+    if missing:
+        rows = read_rows(None if len(missing) > 30000 else missing)
+        arr = np.concatenate([arr, rows]) if arr.size else rows
+        arr = arr[np.lexsort((arr["id"], arr["unit_id"]))]
+    caps = as_columns(arr)
+    cap_unit_index = _index_of(unit_ids_arr, caps["unit_id"])
+    keep = cap_unit_index >= 0  # capacitors of retired units are left out
+    if not keep.all():
+        caps = {k: v[keep] for k, v in caps.items()}
+        cap_unit_index = cap_unit_index[keep]
+    return caps, cap_unit_index
+
+
+def stored_model_means(model_ids):
+    """The gear models' means kept by the last fleet refresh
+    (``ModelUse``), as ``forecast.model_use_means`` gives them, or None when
+    there are none yet."""
+    rows = {r[0]: r[1:] for r in ModelUse.objects.values_list(
+        "gear_model_id", "powered_h_per_year", "out_h_per_year", "ambient_c", "hire_powered_h", "hire_out_h")}
+    if not rows:
+        return None
+    names = ("powered_h_per_year", "out_h_per_year", "ambient_c", "hire_powered_h", "hire_out_h")
+    return {name: np.array([_f(rows.get(m, (None,) * 5)[j]) for m in model_ids], dtype=float)
+            for j, name in enumerate(names)}
+
+
+def load_fleet(*, unit_ids=None, today, min_history_days=180, id_range=None, model_means="stored"):
+    """Everything the engine needs, as arrays (see FleetArrays).
+
+    ``unit_ids`` (a list) or ``id_range`` (first, last) choose the units;
+    all when neither.  ``model_means``: the gear models' mean use to fill
+    units without history ("stored": those of the last fleet refresh, for a
+    forecast of a few units; None: from the units loaded; or a dict of
+    arrays as ``forecast.model_use_means`` gives)."""
+    units = unit_rows(unit_ids=unit_ids, id_range=id_range)
     ids = [u[0] for u in units]
-    filter_ids = None if unit_ids is None else ids
+    filter_ids = None if unit_ids is None and id_range is None else ids
     n = len(units)
     unit_ids_arr = np.array(ids, dtype=np.int64)
 
-    models = list(GearModel.objects.values_list("pk", "internal_rise_k", "powered_hours_per_day"))
+    models = list(GearModel.objects.order_by("pk").values_list("pk", "internal_rise_k", "powered_hours_per_day"))
     midx = {m[0]: k for k, m in enumerate(models)}
+    if isinstance(model_means, str):
+        model_means = (stored_model_means([m[0] for m in models])
+                       if unit_ids is not None or id_range is not None else None)
 
     joined_day = _days_from_text([u[5] for u in units])
     hp = np.zeros((n, H.N_BINS))
     hu = np.zeros((n, H.N_BINS))
     accounted = joined_day.copy()  # a unit without a history counts from joining
     last_powered = np.full(n, np.nan)
-    th_sql = (f"SELECT {qn('unit_id')}, {qn('powered')}, {qn('unpowered')}, CAST({qn('accounted_until')} AS TEXT), "
-              f"CAST({qn('last_powered_at')} AS TEXT) FROM {qn(ThermalHistory._meta.db_table)}")
-    th_params = []
-    if filter_ids is not None:
-        th_sql += f" WHERE {qn('unit_id')} IN ({', '.join(['%s'] * len(filter_ids)) or 'NULL'})"
-        th_params = list(filter_ids)
-    rows = _raw(th_sql, th_params)
+    histories = history_rows(unit_ids=unit_ids, id_range=id_range)
+    rows = [(k, histories[uid]) for k, uid in enumerate(ids) if uid in histories]
     if rows:
-        k = _index_of(unit_ids_arr, np.array([r[0] for r in rows], dtype=np.int64))
-        ok = k >= 0
-        rows = [r for r, keep in zip(rows, ok) if keep]
-        k = k[ok]
-        if rows:
-            hp[k] = H.stack_from_bytes([r[1] for r in rows])
-            hu[k] = H.stack_from_bytes([r[2] for r in rows])
-            accounted[k] = _days_from_text([r[3] for r in rows])
-            last_powered[k] = _days_from_text([r[4] for r in rows])
+        k = np.array([r[0] for r in rows], dtype=np.int64)
+        hp[k] = H.stack_from_bytes([r[1][0] for r in rows])
+        hu[k] = H.stack_from_bytes([r[1][1] for r in rows])
+        accounted[k] = _days_from_text([r[1][2] for r in rows])
+        last_powered[k] = _days_from_text([r[1][3] for r in rows])
 
     temps = location_monthly_temps({u[3] for u in units})
     monthly = np.array([temps[u[3]] for u in units]).reshape(n, 12)
 
-    use = recent_use(filter_ids, today)
-    today_day = date_to_day(today)
-    uidx = {uid: k for k, uid in enumerate(ids)}
-    use_p = np.full(n, np.nan)
-    use_o = np.full(n, np.nan)
-    use_a = np.full(n, np.nan)
-    use_n = np.full(n, np.nan)
-    for unit_id, (p, o, a, hires) in use.items():
-        k = uidx.get(unit_id)
-        if k is not None and today_day - joined_day[k] >= min_history_days:
-            use_p[k], use_o[k], use_a[k], use_n[k] = p, o, a, hires
-    # Units in the fleet long enough but with no hires: a real zero, not unknown.
-    settled = (today_day - joined_day) >= min_history_days
-    use_p[settled & np.isnan(use_p)] = 0.0
-    use_o[settled & np.isnan(use_o)] = 0.0
-    use_n[settled & np.isnan(use_n)] = 0.0
-
-    caps = read_capacitors(filter_ids)
-    cap_unit_index = _index_of(unit_ids_arr, caps["unit_id"])
-    keep = cap_unit_index >= 0  # capacitors of retired units are left out
-    if not keep.all():
-        caps = {k: v[keep] for k, v in caps.items()}
-        cap_unit_index = cap_unit_index[keep]
+    use_p, use_o, use_a, use_n = use_arrays(units, histories, today=today, min_history_days=min_history_days,
+                                            joined_day=joined_day)
+    caps, cap_unit_index = _fitted_parts(units, histories, unit_ids_arr)
+    del histories, rows
 
     pos_qs = Position.objects.order_by("pk")
     if filter_ids is not None:
@@ -340,7 +377,7 @@ def load_fleet(*, unit_ids=None, today, min_history_days=180):
         pos_role=np.array([ROLE_CODES.get(p[3], 0) for p in pos_rows], dtype=np.int64),
         pos_ripple_a=np.array([_f(p[4]) for p in pos_rows]),
         pos_partner=partner, pos_circuit=circuit,
-        snap_powered=sp, snap_unpowered=su, **readings,
+        snap_powered=sp, snap_unpowered=su, model_means=model_means, **readings,
     )
 
 

@@ -29,6 +29,10 @@ class ThermalHistory(models.Model):
         max_length=200, blank=True,
         help_text="The unit's own figures the history was built from (year made, joining date, prior use, the "
                   "model's internal rise); a change means a rebuild.")
+    parts = models.BinaryField(default=b"", help_text="The unit's fitted parts, packed (scheduling/parts.py).")
+    recent = models.BinaryField(default=b"", help_text="Its recent closed hires, packed (scheduling/recent.py).")
+    parts_version = models.IntegerField(
+        default=-1, help_text="The unit's records_version the two packs were written at (-1: never).")
     updated_at = models.DateTimeField(auto_now=True)
 
     def __str__(self):
@@ -91,3 +95,19 @@ class UnitForecast(models.Model):
 
     def __str__(self):
         return f"{self.unit_id}: {self.status} {self.due_date}"
+
+
+class ModelUse(models.Model):
+    """A gear model's mean recent use over the units with a year of history,
+    kept by the fleet refresh so that a forecast of a few units (a check-in)
+    fills units without history exactly as the fleet refresh does."""
+
+    gear_model = models.OneToOneField("fleet.GearModel", on_delete=models.CASCADE, related_name="+")
+    as_of = models.DateField(help_text="The day the means were taken for.")
+    units = models.PositiveIntegerField(help_text="Units with enough history behind the means.")
+    powered_h_per_year = models.FloatField(null=True, help_text="hours; empty: no unit with history")
+    out_h_per_year = models.FloatField(null=True, help_text="hours")
+    ambient_c = models.FloatField(null=True, help_text="degC, weighted by powered hours")
+    hire_units = models.PositiveIntegerField(default=0, help_text="Units with at least one hire in the year.")
+    hire_powered_h = models.FloatField(null=True, help_text="hours powered per hire")
+    hire_out_h = models.FloatField(null=True, help_text="hours out per hire")

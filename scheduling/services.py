@@ -23,7 +23,8 @@ from .checks import compute_sound
 from .days import day_to_date
 from .forecast import EngineOptions, Policy
 from .loader import active_policy, load_fleet
-from .models import UnitForecast
+from .forecast import model_use_means, model_use_sums
+from .models import ModelUse, UnitForecast
 from .thermal import thermal_sync
 from .thresholds import ROLE_NAMES
 from .triage import ACTION_NAMES, LEAVE
@@ -67,6 +68,7 @@ class ForecastRun:
         self.fleet, self.result, self.policy, self.today = fleet, result, policy, today
         self.unforecastable = list(unforecastable)
         self.seconds = {}  # wall time of the stages: load, compute, store
+        self.model_sums = None  # the gear models' use sums of the whole fleet, when it is one
         order = np.argsort(fleet.unit_index, kind="stable")
         self._starts = np.searchsorted(fleet.unit_index[order], np.arange(fleet.n_units), "left")
         self._ends = np.searchsorted(fleet.unit_index[order], np.arange(fleet.n_units), "right")
@@ -132,19 +134,80 @@ class ForecastRun:
 
 
 def forecast_compute(*, unit_ids=None, today=None, law=None, activation_energy_ev=None, esr_feedback=False,
-                     weibull_shape=None, frailty_sigma=None, policy=None):
-    """Compute forecasts without storing them; returns a ForecastRun."""
+                     weibull_shape=None, frailty_sigma=None, policy=None, id_range=None, model_means="stored"):
+    """Compute forecasts without storing them; returns a ForecastRun.
+
+    The whole fleet (no ``unit_ids``, no ``id_range``) fills units without
+    history from the means of every unit loaded; a few units use the means
+    the last fleet refresh kept (``ModelUse``), so that they come out as they
+    would in the fleet refresh; a batch is given the fleet's means."""
     today = today or timezone.localdate()
     options = _options_from(law, activation_energy_ev, esr_feedback, weibull_shape, frailty_sigma)
     policy_row = policy or active_policy()
     started = time.perf_counter()
-    fleet = load_fleet(unit_ids=unit_ids, today=today, min_history_days=options.min_history_days)
+    fleet = load_fleet(unit_ids=unit_ids, today=today, min_history_days=options.min_history_days,
+                       id_range=id_range, model_means=model_means)
+    sums = None
+    if unit_ids is None and id_range is None:
+        sums = fleet_use_sums(fleet)
+        fleet.model_means = model_use_means(sums)
     loaded = time.perf_counter()
     pol = Policy.from_model(policy_row)
     sound, result, unforecastable = compute_sound(fleet, today=today, policy=pol, options=options)
     run = ForecastRun(sound, result, pol, today, unforecastable)
+    run.model_sums = sums  # the whole fleet's, kept by forecast_refresh
     run.seconds = {"load": loaded - started, "compute": time.perf_counter() - loaded}
     return run
+
+
+def fleet_use_sums(fleet):
+    """The sums behind the gear models' mean use over the units of ``fleet``."""
+    return model_use_sums(fleet.unit_model, fleet.model_id.size, fleet.use_powered_h_per_year,
+                          fleet.use_out_h_per_year, fleet.use_ambient_c, fleet.use_hires_per_year)
+
+
+def model_use_store(model_ids, sums, today):
+    """Keep the gear models' means (``ModelUse``) for forecasts of a few units."""
+    means = model_use_means(sums)
+
+    def num(x):
+        return None if np.isnan(x) else float(x)
+
+    rows = [ModelUse(gear_model_id=int(m), as_of=today, units=int(sums["units"][k]),
+                     powered_h_per_year=num(means["powered_h_per_year"][k]), out_h_per_year=num(means["out_h_per_year"][k]),
+                     ambient_c=num(means["ambient_c"][k]), hire_units=int(sums["hire_units"][k]),
+                     hire_powered_h=num(means["hire_powered_h"][k]), hire_out_h=num(means["hire_out_h"][k]))
+            for k, m in enumerate(np.asarray(model_ids).tolist())]
+    with transaction.atomic(savepoint=False):
+        ModelUse.objects.exclude(gear_model_id__in=[r.gear_model_id for r in rows]).delete()
+        ModelUse.objects.bulk_create(rows, update_conflicts=True, unique_fields=["gear_model"],
+                                     update_fields=["as_of", "units", "powered_h_per_year", "out_h_per_year",
+                                                    "ambient_c", "hire_units", "hire_powered_h", "hire_out_h"])
+    return means
+
+
+def priorities_rank():
+    """Number the units that need work 1, 2, 3 ... across the whole fleet, by
+    score (highest first), then act-by date (earliest first, none last),
+    then unit id: the order ``triage.triage`` gives a whole fleet.  A unit
+    needs work when its stored priority is set (a refresh of any part of the
+    fleet stores a place-holder); only rows whose number changes are written.
+    One statement; on PostgreSQL concurrent refreshes take turns (an advisory
+    lock held to the end of the transaction)."""
+    qn = connection.ops.quote_name
+    t = qn(UnitForecast._meta.db_table)
+    with transaction.atomic(savepoint=False), connection.cursor() as cursor:
+        if connection.vendor == "postgresql":
+            cursor.execute("SELECT pg_advisory_xact_lock(%s)", [RANK_LOCK_KEY])
+        cursor.execute(
+            f"UPDATE {t} SET {qn('priority')} = r.rn FROM (SELECT {qn('id')} AS fid, ROW_NUMBER() OVER ("
+            f"ORDER BY {qn('score')} DESC, {qn('act_by')} ASC NULLS LAST, {qn('unit_id')} ASC) AS rn FROM {t} "
+            f"WHERE {qn('priority')} IS NOT NULL) AS r WHERE {t}.{qn('id')} = r.fid AND {t}.{qn('priority')} <> r.rn")
+        return cursor.rowcount
+
+
+#: Key of the advisory lock that serialises priorities_rank on PostgreSQL.
+RANK_LOCK_KEY = 7_301_001
 
 
 def _day_dates(days):
@@ -247,15 +310,19 @@ def _store(run):
     return len(unit_ids)
 
 
-def forecast_refresh(*, unit_ids=None, today=None, **options):
+def forecast_refresh(*, unit_ids=None, today=None, sync=True, **options):
     """Recompute and store the forecast of the given units (all when None).
 
-    First brings the thermal history of any of them whose records changed (or
-    that has none yet) up to date (``thermal.thermal_sync``).  Idempotent: the
-    stored row of each unit is overwritten.  Retired units are not forecast and
-    their old results are removed.  Returns the ForecastRun.
+    First (unless ``sync=False``: the caller just did) brings the thermal
+    history and packs of any of them whose records changed up to date
+    (``thermal.thermal_sync``).  Idempotent: the stored row of each unit is
+    overwritten, and the priorities of the whole fleet renumbered
+    (``priorities_rank``).  Retired units are not forecast and their old
+    results are removed.  The whole fleet also keeps its gear models' means
+    for later forecasts of a few units.  Returns the ForecastRun.
     """
-    thermal_sync(unit_ids=unit_ids)
+    if sync:
+        thermal_sync(unit_ids=unit_ids)
     run = forecast_compute(unit_ids=unit_ids, today=today, **options)
     # No savepoint: inside a caller's transaction (check-in) a failure here
     # fails the whole of it, and it saves two round trips per refresh.
@@ -266,10 +333,12 @@ def forecast_refresh(*, unit_ids=None, today=None, **options):
         # Units asked for but not forecast are retired (or gone): drop their old results.
         if unit_ids is None:
             UnitForecast.objects.filter(unit__status=Unit.Status.RETIRED).delete()
+            model_use_store(run.fleet.model_id, run.model_sums, run.today)
         else:
             missing = set(unit_ids) - set(run.fleet.unit_id.tolist()) - {u.unit_id for u in run.unforecastable}
             if missing:
                 UnitForecast.objects.filter(unit_id__in=missing).delete()
+        priorities_rank()
     run.seconds["store"] = time.perf_counter() - started  # for the benchmark's breakdown
     for unit in run.unforecastable:
         log.warning("Cannot forecast %s: %s", unit.asset_tag, "; ".join(unit.reasons))
@@ -345,30 +414,3 @@ def unit_trajectory(*, forecast, installed_on, damage_limit, positions=TRAJECTOR
     curves.risk = risk_at(curves.days, damage_now=damage, rate_per_day=rate, threshold=threshold,
                           installed_day=installed, today_day=today_day, horizon_days=forecast.horizon_days)
     return curves, [int(c) for c in rec["capacitor_id"][worst]]
-
-
-#: Units whose histories one step of the nightly job brings up to date (the
-#: progress a fleet-wide run shows moves by this much).
-NIGHTLY_CHUNK = 2000
-
-
-def fleet_nightly_refresh(*, now=None, progress=None):
-    """The nightly job: bring every history up to date with the register and
-    count storage up to ``now``, in chunks of units (histories are per unit),
-    then recompute and store the whole fleet's forecast in one pass (priority
-    ranks the fleet as a whole).  ``progress(n_units)`` is called as units are
-    done, once for the histories and once for the forecast.  Returns
-    ``(SyncReport totals as a dict, ForecastRun)``."""
-    now = now or timezone.now()
-    ids = list(Unit.objects.exclude(status=Unit.Status.RETIRED).order_by("pk").values_list("pk", flat=True))
-    changed = advanced = 0
-    for start in range(0, len(ids), NIGHTLY_CHUNK):
-        chunk = ids[start:start + NIGHTLY_CHUNK]
-        report = thermal_sync(unit_ids=chunk, until=now, advance_storage=True)
-        changed, advanced = changed + report.changed, advanced + report.advanced
-        if progress:
-            progress(len(chunk))
-    run = forecast_refresh()
-    if progress:
-        progress(run.fleet.n_units)
-    return {"changed": changed, "advanced": advanced, "units": len(ids)}, run

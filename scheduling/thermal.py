@@ -15,8 +15,10 @@ unit that differs (or has no history yet) either adds the hires closed since
 the history's end (the usual case: a check-in) or rebuilds the history from
 the records (a late-entered or edited hire, new dates, another home, an
 import).  It also keeps a snapshot for every date on which one of the unit's
-fitted parts went in.  The nightly job adds storage up to now
-(``thermal_advance_storage``).
+fitted parts went in, and packs the unit's fitted parts and recent hires
+beside the history (``thermal_repack``; scheduling/parts.py and recent.py)
+for the loader to read instead of the rows.  The nightly job adds storage up
+to now (``thermal_advance_storage``).
 
 The incremental steps and the from-scratch ``thermal_rebuild`` give the same
 histograms; a test holds them to it.  Queries are per table, never per unit.
@@ -35,6 +37,8 @@ from django.utils import timezone
 from fleet.models import Location, Reading, Rental, TemperatureSample, Unit, UnitCapacitor
 
 from . import histogram as H
+from . import parts as P
+from . import recent as R
 from .models import HistogramSnapshot, ThermalHistory
 
 HOURS_PER_YEAR = 8766.0  # 365.25 days
@@ -212,6 +216,7 @@ class SyncReport:
     rebuilt: int = 0       # histories rebuilt from the records
     snapshots: int = 0     # snapshots written for newly fitted parts
     advanced: int = 0      # histories whose storage was counted up to ``until``
+    repacked: int = 0      # histories whose packed parts and hires were written again
 
     @property
     def changed(self):
@@ -252,15 +257,62 @@ def thermal_sync(*, unit_ids=None, until=None, advance_storage=False):
     until = until or timezone.now()
     report = SyncReport()
     units = Unit.objects.exclude(status=Unit.Status.RETIRED).filter(
-        Q(thermal__isnull=True) | ~Q(thermal__records_version=F("records_version")))
+        Q(thermal__isnull=True) | ~Q(thermal__records_version=F("records_version"))
+        | ~Q(thermal__parts_version=F("records_version")))
     if unit_ids is not None:
         units = units.filter(pk__in=list(unit_ids))
-    stale = list(units.select_related("gear_model"))
+    stale = list(units.select_related("gear_model", "thermal"))
+    behind = [u for u in stale if not hasattr(u, "thermal") or u.thermal.records_version != u.records_version]
+    if behind:
+        _sync_units(behind, until, report)
     if stale:
-        _sync_units(stale, until, report)
+        report.repacked = thermal_repack(unit_ids=[u.pk for u in stale])
     if advance_storage:
         report.advanced = thermal_advance_storage(unit_ids=unit_ids, until=until)
     return report
+
+
+#: Units whose packs one step of ``thermal_repack`` writes (memory: their rows).
+REPACK_CHUNK = 2000
+
+
+@transaction.atomic
+def thermal_repack(*, unit_ids=None):
+    """Write each unit's packed fitted parts and recent hires (see
+    scheduling/parts.py, recent.py) from the rows, marked with the unit's
+    ``records_version``.  All units with a history when ``unit_ids`` is
+    None.  Three queries per step of REPACK_CHUNK units; returns the number
+    of histories written."""
+    now = timezone.now()
+    since = now - dt.timedelta(days=R.KEEP_DAYS)
+    complete_from = since.timestamp() / 86400.0
+    qs = ThermalHistory.objects.order_by("unit_id")
+    if unit_ids is not None:
+        qs = qs.filter(unit_id__in=list(unit_ids))
+    pks = dict(qs.values_list("unit_id", "id"))
+    ids = list(pks)
+    done = 0
+    for start in range(0, len(ids), REPACK_CHUNK):
+        chunk = ids[start:start + REPACK_CHUNK]
+        versions = dict(Unit.objects.filter(pk__in=chunk).values_list("pk", "records_version"))
+        parts = P.packs_of(P.read_rows(chunk), chunk)
+        hires = defaultdict(list)
+        for unit_id, out_at, in_at, powered, ambient in (
+                Rental.objects.filter(unit_id__in=chunk, in_at__gte=since).order_by("in_at")
+                .values_list("unit_id", "out_at", "in_at", "powered_hours", "venue_ambient_c")):
+            hires[unit_id].append((out_at.timestamp() / 86400.0, in_at.timestamp() / 86400.0,
+                                   np.nan if powered is None else powered, np.nan if ambient is None else ambient))
+        rows = []
+        for unit_id in chunk:
+            recent = np.array(hires.get(unit_id, []), dtype=float).reshape(-1, 4)
+            packed = np.zeros(recent.shape[0], dtype=R.HIRE_ROW)
+            for j, name in enumerate(R.HIRE_ROW.names):
+                packed[name] = recent[:, j]
+            rows.append(ThermalHistory(pk=pks[unit_id], unit_id=unit_id, parts=parts[unit_id],
+                                       recent=R.pack(packed, complete_from), parts_version=versions.get(unit_id, -1)))
+        ThermalHistory.objects.bulk_update(rows, ["parts", "recent", "parts_version"], batch_size=500)
+        done += len(rows)
+    return done
 
 
 def _sync_units(units, until, report):

@@ -145,7 +145,9 @@ def triage(*, unit_index, n_units, role_code, damage, threshold, hire_damage, in
     priority = np.zeros(n_units, dtype=np.int64)
     ranked = np.flatnonzero(needs)
     if ranked.size:
-        key_act = np.where(np.isnan(act_by[ranked]), np.inf, act_by[ranked])
+        # by the act-by day as stored (a date), so the fleet's order is the one
+        # services.priorities_rank gives the stored rows
+        key_act = np.where(np.isnan(act_by[ranked]), np.inf, np.floor(act_by[ranked]))
         order = ranked[np.lexsort((ranked, key_act, -score[ranked]))]
         priority[order] = np.arange(1, order.size + 1)
     return Triage(hire_risk=risk, impact=impact, score=score, needs_work=needs, priority=priority,

@@ -16,7 +16,7 @@ from django.core.management import call_command
 from django.utils import timezone
 
 from fleet.models import BenchVisit, CheckoutOverride, GearModel, Location, Position, Reading, Unit
-from fleet.services import ServiceError
+from fleet.services import ServiceError, units_mark_changed
 from front import bench, workflows
 from scheduling import physics
 from scheduling.services import forecast_compute, forecast_refresh
@@ -312,6 +312,7 @@ def test_readings_stay_with_their_unit_when_another_unit_cannot_be_forecast(unit
     # A part no one makes (1 pF in a 6.3 mm can) sets the first unit aside; the second's capacitor
     # rows move up, and its reading must move with them.
     UnitCapacitor.objects.filter(unit=unit, position__designator="C2").update(capacitance_uf=1e-6)
+    units_mark_changed(unit_ids=[unit.pk])  # as every writer of fitted parts does
     run = forecast_refresh()
     assert [run.fleet.asset_tag[u] for u in range(run.fleet.n_units)] == ["EC-0002"]
     assert [u.asset_tag for u in run.unforecastable] == ["EC-0001"]

@@ -23,6 +23,7 @@ from django.urls import reverse
 from django.utils import timezone
 
 from fleet.models import Position, Unit, UnitCapacitor
+from fleet.services import units_mark_changed
 from front.workflows import rental_check_out
 from scheduling import checks
 from scheduling.loader import FleetArrays, load_fleet
@@ -44,6 +45,7 @@ def two_units(db):
     bad = make_unit(fleet.gear_model, fleet.location, asset_tag="NMB-0002", serial="BA-80-2001")
     UnitCapacitor.objects.filter(unit=bad, position__designator="C1").update(capacitance_uf=1e-6, esr_ohm=None,
                                                                              tan_delta=0.1)
+    units_mark_changed(unit_ids=[bad.pk])  # as every writer of fitted parts does
     fleet.bad = bad
     return fleet
 
@@ -67,6 +69,7 @@ def test_a_corrected_unit_is_forecast_again(two_units):
     forecast_refresh()
     UnitCapacitor.objects.filter(unit=two_units.bad, position__designator="C1").update(capacitance_uf=2200,
                                                                                        esr_ohm=0.05)
+    units_mark_changed(unit_ids=[two_units.bad.pk])
     run = forecast_refresh(unit_ids=[two_units.bad.pk])
     assert not run.unforecastable
     assert UnitForecast.objects.get(unit=two_units.bad).status != UnitForecast.Status.INVALID
@@ -220,6 +223,7 @@ def test_a_failure_no_check_foresaw_is_found_by_halving(two_units, monkeypatch):
     """Whatever the arithmetic refuses, the units it refuses are found and the rest forecast."""
     UnitCapacitor.objects.filter(unit=two_units.bad, position__designator="C1").update(
         capacitance_uf=2200, esr_ohm=0.05, tan_delta=None)
+    units_mark_changed(unit_ids=[two_units.bad.pk])
     refused = two_units.bad.pk
     real = checks.compute
 
@@ -238,6 +242,7 @@ def test_a_failure_no_check_foresaw_is_found_by_halving(two_units, monkeypatch):
 def test_results_that_are_not_finite_set_the_unit_aside(two_units, monkeypatch):
     UnitCapacitor.objects.filter(unit=two_units.bad, position__designator="C1").update(
         capacitance_uf=2200, esr_ohm=0.05, tan_delta=None)
+    units_mark_changed(unit_ids=[two_units.bad.pk])
     real = checks.compute
     refused = two_units.bad.pk
 

@@ -8,7 +8,7 @@ from django.core.management.base import BaseCommand
 from tqdm import tqdm
 
 from fleet.models import Unit
-from scheduling.services import fleet_nightly_refresh
+from scheduling.batches import fleet_nightly_refresh
 
 log = logging.getLogger("scheduling.refresh")
 
@@ -24,13 +24,11 @@ class Command(BaseCommand):
         with tqdm(total=2 * n, unit="unit", desc="histories, then forecasts", disable=not sys.stderr.isatty(),
                   file=sys.stderr, leave=False) as bar:
             synced, run = fleet_nightly_refresh(progress=bar.update)
-        counts = {}
-        for status in run.result.status:
-            counts[status] = counts.get(status, 0) + 1
-        need = int((run.result.priority > 0).sum()) if run.fleet.n_units else 0
-        summary = (f"refresh_forecasts: {run.fleet.n_units} units forecast in {time.perf_counter() - started:.1f} s "
-                   f"({synced['changed']} histories rebuilt or extended, {synced['advanced']} storage counted); "
+        counts = run.statuses
+        summary = (f"refresh_forecasts: {run.forecast} units forecast in {time.perf_counter() - started:.1f} s "
+                   f"in {run.batches} batches ({synced['changed']} histories rebuilt or extended, "
+                   f"{synced['advanced']} storage counted); "
                    f"overdue {counts.get('overdue', 0)}, due {counts.get('due', 0)}, watch {counts.get('watch', 0)}, "
-                   f"ok {counts.get('ok', 0)}, cannot forecast {len(run.unforecastable)}; {need} need work")
+                   f"ok {counts.get('ok', 0)}, cannot forecast {run.cannot_forecast}; {run.need_work} need work")
         log.info(summary)
         self.stdout.write(summary)

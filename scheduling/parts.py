@@ -1,0 +1,105 @@
+"""Each unit's fitted parts, packed beside its thermal history.
+
+A full recompute used to re-read every capacitor row (half a million rows of
+fourteen columns at 10,000 units), although fitted parts change only when a
+unit is populated, recapped, read or imported.  Each of those raises the
+unit's ``records_version`` (``fleet.services.units_mark_changed``), and
+``thermal.thermal_sync`` then writes the unit's rows again as one packed
+array (``ThermalHistory.parts``, with ``parts_version`` the records version it
+was packed at).  The loader reads packs with ``np.frombuffer`` and falls back
+to the rows for any unit whose pack is missing or older than its records.
+
+``manage.py verify_parts [--repair]`` compares every pack with the rows.
+"""
+
+import itertools
+
+import numpy as np
+from django.db import connection
+
+from fleet.models import UnitCapacitor
+
+#: One capacitor row as packed and as read (NULL ESR or tan delta: -1).
+CAPACITOR_ROW = np.dtype([
+    ("id", "<i8"), ("unit_id", "<i8"), ("position_id", "<i8"), ("capacitance_uf", "<f8"),
+    ("rated_voltage_v", "<f8"), ("rated_temp_c", "<f8"), ("rated_life_h", "<f8"), ("esr_ohm", "<f8"),
+    ("tan_delta", "<f8"), ("diameter_mm", "<f8"), ("length_mm", "<f8"), ("installed_day", "<f8"),
+    ("is_original", "?"),
+])
+#: Every pack starts with this tag; change it with CAPACITOR_ROW, so that a
+#: pack of another layout reads as missing (and the rows are read instead).
+PACK_TAG = b"CP01"
+CHUNK_ROWS = 20_000
+
+
+def _days_since_epoch_sql(column):
+    """SQL for a date column as days since 1970-01-01."""
+    if connection.vendor == "postgresql":
+        return f"({column} - DATE '1970-01-01')"
+    return f"(julianday({column}) - 2440587.5)"
+
+
+def rows_sql(unit_filter_sql=None):
+    """The SELECT of capacitor rows in CAPACITOR_ROW order, by unit then id."""
+    qn = connection.ops.quote_name
+    select = []
+    for name in CAPACITOR_ROW.names:
+        col = qn(name)
+        if name in ("esr_ohm", "tan_delta"):
+            col = f"COALESCE({col}, -1.0)"
+        elif name == "installed_day":
+            col = _days_since_epoch_sql(qn("installed_on"))  # a number: no per-row date conversion
+        select.append(col)
+    sql = f"SELECT {', '.join(select)} FROM {qn(UnitCapacitor._meta.db_table)}"
+    if unit_filter_sql:
+        sql += f" WHERE {qn('unit_id')} IN ({unit_filter_sql})"
+    return sql + f" ORDER BY {qn('unit_id')}, {qn('id')}"
+
+
+def read_rows(unit_ids=None, bare=False):
+    """The capacitor rows of ``unit_ids`` (all when None) as one CAPACITOR_ROW
+    array, filled chunk by chunk from the cursor.  ``bare=True`` only fetches
+    the rows and returns their number (the benchmark's floor)."""
+    params = [] if unit_ids is None else list(unit_ids)
+    ids_sql = None if unit_ids is None else (", ".join(["%s"] * len(params)) or "NULL")
+    with connection.cursor() as cursor:
+        cursor.execute(rows_sql(ids_sql), params)
+        chunks = iter(lambda: cursor.fetchmany(CHUNK_ROWS), [])
+        if bare:
+            return sum(len(rows) for rows in chunks)
+        return np.fromiter(itertools.chain.from_iterable(chunks), dtype=CAPACITOR_ROW)
+
+
+def pack(rows):
+    """One unit's rows (a CAPACITOR_ROW array) as bytes."""
+    return PACK_TAG + np.ascontiguousarray(rows, dtype=CAPACITOR_ROW).tobytes()
+
+
+def packs_of(rows, unit_ids):
+    """{unit id: pack} for every one of ``unit_ids`` (a unit without rows gets
+    an empty pack, which is not a missing one); ``rows`` sorted by unit."""
+    ids = np.asarray(sorted(unit_ids), dtype=np.int64)
+    starts = np.searchsorted(rows["unit_id"], ids, "left")
+    ends = np.searchsorted(rows["unit_id"], ids, "right")
+    return {int(u): pack(rows[a:b]) for u, a, b in zip(ids.tolist(), starts.tolist(), ends.tolist())}
+
+
+def is_pack(blob):
+    """True for a pack written with the current layout."""
+    blob = bytes(blob or b"")
+    return blob[:len(PACK_TAG)] == PACK_TAG and (len(blob) - len(PACK_TAG)) % CAPACITOR_ROW.itemsize == 0
+
+
+def unpack_many(blobs):
+    """Many packs (in unit order) as one CAPACITOR_ROW array, copied once."""
+    tag = len(PACK_TAG)
+    joined = b"".join(memoryview(b)[tag:] for b in blobs)
+    return np.frombuffer(joined, dtype=CAPACITOR_ROW)
+
+
+def as_columns(arr):
+    """A CAPACITOR_ROW array as contiguous columns, NULL figures as NaN."""
+    out = {name: np.ascontiguousarray(arr[name]) for name in CAPACITOR_ROW.names}
+    for name in ("esr_ohm", "tan_delta"):
+        out[name] = np.where(out[name] < 0, np.nan, out[name])
+    return out
