@@ -495,3 +495,25 @@ def thermal_rebuild(*, unit_ids=None, until=None):
     HistogramSnapshot.objects.bulk_create(new_snaps, batch_size=1000)
     HistogramSnapshot.objects.bulk_update(changed_snaps, ["taken_at", "powered", "unpowered"], batch_size=1000)
     return len(units)
+
+
+def parts_verify(*, unit_ids=None, repair=False):
+    """Compare each history's packed fitted parts with the capacitor rows.
+
+    Returns the ids of units whose pack is missing, of another layout, or
+    differs from the rows; with ``repair`` those are packed again.  Goes
+    through the fleet REPACK_CHUNK units at a time (two queries each)."""
+    qs = ThermalHistory.objects.order_by("unit_id")
+    if unit_ids is not None:
+        qs = qs.filter(unit_id__in=list(unit_ids))
+    ids = list(qs.values_list("unit_id", flat=True))
+    wrong = []
+    for start in range(0, len(ids), REPACK_CHUNK):
+        chunk = ids[start:start + REPACK_CHUNK]
+        rows = P.packs_of(P.read_rows(chunk), chunk)
+        for unit_id, blob in ThermalHistory.objects.filter(unit_id__in=chunk).values_list("unit_id", "parts"):
+            if bytes(blob or b"") != rows[unit_id]:
+                wrong.append(unit_id)
+    if repair and wrong:
+        thermal_repack(unit_ids=wrong)
+    return wrong

@@ -1,0 +1,200 @@
+"""The fleet refresh in batches (scheduling/batches.py) stores exactly what
+one pass over the whole fleet stores; a forecast of one unit stores what the
+fleet refresh stored for it; priorities stay numbered 1..K across the fleet
+after any refresh.  Reference: the project's own one-pass refresh, whose
+figures the rest of the suite checks against published sources; here the
+batched and single-unit paths must reproduce it exactly."""
+
+import datetime as dt
+import os
+import subprocess
+import sys
+import time
+from pathlib import Path
+
+import pytest
+from django.core.management import call_command
+from django.db import connection
+from django.utils import timezone
+
+from fleet.models import Unit, UnitCapacitor
+from fleet.services import units_mark_changed
+from front import workflows
+from scheduling import batches, tasks
+from scheduling.models import ModelUse, UnitForecast
+from scheduling.services import forecast_refresh, priorities_rank
+
+ROOT = Path(__file__).resolve().parent.parent
+FIELDS = ["unit_id", "status", "due_date", "risk", "horizon_days", "max_damage_ratio", "storage_reform", "reasons",
+          "positions", "act_by", "priority", "hire_risk", "score", "action_roles"]
+
+
+FLOATS = ("risk", "max_damage_ratio", "hire_risk", "score")
+
+
+def stored():
+    """The stored forecasts, floats to 12 significant digits: numpy's sums
+    over arrays of other lengths may differ in the last bits (about 1e-15)."""
+    def row(r):
+        r = {**r, "positions": bytes(r["positions"] or b"")}
+        for name in FLOATS:
+            r[name] = None if r[name] is None else float(f"{r[name]:.12g}")
+        return r
+
+    return {r["unit_id"]: row(r) for r in UnitForecast.objects.values(*FIELDS)}
+
+
+def assert_same(got, want):
+    """Equal stored rows; on failure name the units and fields that differ."""
+    assert set(got) == set(want)
+    differ = {u: {k: (got[u][k], want[u][k]) for k in FIELDS if got[u][k] != want[u][k] and k != "positions"}
+              | ({"positions": "bytes differ"} if got[u]["positions"] != want[u]["positions"] else {})
+              for u in got if got[u] != want[u]}
+    assert not differ, differ
+
+
+def _small_fleet():
+    call_command("make_fleet", units=23, positions=6, years=2, models=4, seed=5, stdout=open(os.devnull, "w"))
+    units = list(Unit.objects.order_by("pk"))
+    # Two units too new for their own history: they take their model's means.
+    Unit.objects.filter(pk__in=[units[3].pk, units[11].pk]).update(joined_on=timezone.localdate() - dt.timedelta(days=30))
+    # One unit the engine cannot use: it is set aside, the rest are forecast.
+    UnitCapacitor.objects.filter(unit=units[7]).update(capacitance_uf=1e-6)
+    # One retired unit: never forecast.
+    Unit.objects.filter(pk=units[20].pk).update(status=Unit.Status.RETIRED)
+    units_mark_changed(unit_ids=[units[k].pk for k in (3, 7, 11)])
+    batches.fleet_histories_sync()
+    return units
+
+
+@pytest.fixture
+def small_fleet(db):
+    return _small_fleet()
+
+
+def test_batches_store_what_one_pass_stores(small_fleet):
+    one = forecast_refresh()
+    assert len(one.unforecastable) == 1 and one.fleet.n_units == 21
+    whole = stored()
+    means = {m.gear_model_id: m.powered_h_per_year for m in ModelUse.objects.all()}
+    UnitForecast.objects.all().delete()
+    ModelUse.objects.all().delete()
+    report = batches.fleet_refresh(batch_units=4)
+    assert report.batches == 6 and (report.forecast, report.cannot_forecast) == (21, 1)
+    assert_same(stored(), whole)
+    assert {m.gear_model_id: m.powered_h_per_year for m in ModelUse.objects.all()} == means
+    assert sum(report.statuses.values()) == 22 and report.need_work == sum(1 for r in whole.values() if r["priority"])
+
+
+def test_one_unit_refreshed_alone_stores_what_the_fleet_refresh_stored(small_fleet):
+    batches.fleet_refresh(batch_units=5)
+    whole = stored()
+    for unit in (small_fleet[3], small_fleet[4], small_fleet[12]):
+        forecast_refresh(unit_ids=[unit.pk], sync=False)
+        assert_same(stored(), whole), unit.asset_tag
+
+
+def _ranked_in_python():
+    rows = list(UnitForecast.objects.filter(priority__isnull=False).values_list("unit_id", "score", "act_by"))
+    rows.sort(key=lambda r: (-r[1], r[2] is None, r[2] or dt.date.min, r[0]))
+    return {unit_id: k + 1 for k, (unit_id, _, _) in enumerate(rows)}
+
+
+def test_priorities_stay_numbered_across_the_fleet_after_a_check_in(small_fleet):
+    batches.fleet_refresh(batch_units=7)
+    before = {u: p for u, p in UnitForecast.objects.filter(priority__isnull=False).values_list("unit_id", "priority")}
+    assert before == _ranked_in_python() and sorted(before.values()) == list(range(1, len(before) + 1))
+    # A unit back from a long hot hire: its forecast, and so the order, moves.
+    unit = next(u for u in small_fleet if u.pk not in (small_fleet[7].pk, small_fleet[20].pk)
+                and not Unit.objects.get(pk=u.pk).rentals.filter(in_at__isnull=True).exists())
+    out = timezone.now() - dt.timedelta(hours=2)
+    workflows.rental_check_out(unit_id=unit.pk, job_ref="HOT-1", out_at=out, override_reason="test hire")
+    workflows.rental_check_in(unit_id=unit.pk, in_at=out + dt.timedelta(hours=1), venue_ambient_c=45.0,
+                              powered_hours=1.0)
+    after = {u: p for u, p in UnitForecast.objects.filter(priority__isnull=False).values_list("unit_id", "priority")}
+    assert after == _ranked_in_python() and sorted(after.values()) == list(range(1, len(after) + 1))
+    # The first in line whose parts, not its circuit, are the trouble is recapped
+    # throughout: its score drops and the order changes.
+    first = next(u for u, _ in sorted(after.items(), key=lambda x: x[1])
+                 if "new part" not in " ".join(UnitForecast.objects.get(unit_id=u).reasons))
+    score = UnitForecast.objects.get(unit_id=first).score
+    designators = list(UnitCapacitor.objects.filter(unit_id=first).values_list("position__designator", flat=True))
+    workflows.service_record_recap(unit_id=first, performed_on=timezone.localdate(),
+                                   replacements={d: {} for d in designators})
+    final = {u: p for u, p in UnitForecast.objects.filter(priority__isnull=False).values_list("unit_id", "priority")}
+    assert UnitForecast.objects.get(unit_id=first).score < score and final.get(first) != after[first]
+    assert final == _ranked_in_python() and sorted(final.values()) == list(range(1, len(final) + 1))
+    assert priorities_rank() == 0  # nothing left to renumber
+
+
+def test_the_nightly_task_runs_the_batches_in_one_worker_without_redis(small_fleet, settings):
+    settings.RECAP_PARALLEL_REFRESH = False
+    out = tasks.fleet_nightly_refresh.delay().get()
+    assert (out["forecast"], out["cannot_forecast"]) == (21, 1)
+    assert UnitForecast.objects.count() == 22
+
+
+@pytest.mark.parametrize("args, words", [
+    ((0, 5, "2026-01-01"), "first_id must be a positive whole number"),
+    ((3, "9", "2026-01-01"), "last_id must be a positive whole number"),
+    ((9, 3, "2026-01-01"), "last_id (3) is before first_id (9)"),
+    ((1, 3, "01/02/2026"), "today_iso must be a date written YYYY-MM-DD"),
+    ((1, 3, None), "today_iso must be a date written YYYY-MM-DD"),
+])
+def test_a_batch_task_refuses_bad_arguments(db, args, words):
+    with pytest.raises(ValueError) as exc:
+        tasks.fleet_refresh_batch.delay(*args)
+    assert words in str(exc.value)
+    assert not UnitForecast.objects.exists()
+
+
+def test_fleet_batches_refuses_a_bad_size(db):
+    with pytest.raises(ValueError, match="batch_units must be a whole number of at least 1"):
+        batches.fleet_batches(0)
+
+
+def _database_url():
+    s = connection.settings_dict
+    if connection.vendor == "sqlite":
+        return f"sqlite:///{s['NAME']}"
+    return f"postgres://{s['USER']}@{s['HOST'] or '127.0.0.1'}:{s['PORT'] or 5432}/{s['NAME']}"
+
+
+@pytest.mark.redis
+def test_two_workers_on_redis_store_what_one_pass_stores(transactional_db, redis_url, settings):
+    if connection.vendor == "sqlite" and connection.settings_dict["NAME"].startswith(("file:", ":memory:")):
+        pytest.skip("the workers need a file database; set the SQLite TEST NAME")
+    _small_fleet()
+    forecast_refresh()
+    whole = stored()
+    UnitForecast.objects.all().delete()
+    env = dict(os.environ, REDIS_URL=redis_url, DATABASE_URL=_database_url(), DJANGO_SETTINGS_MODULE="config.settings",
+               RECAP_PARALLEL_REFRESH="true", CELERY_TASK_ALWAYS_EAGER="false")
+    workers = [subprocess.Popen(
+        [sys.executable, "-m", "celery", "-A", "config", "worker", "--pool=solo", "--without-mingle",
+         "--without-gossip", "--without-heartbeat", "--loglevel=WARNING", "-n", f"batch{k}-{os.getpid()}@%h"],
+        cwd=ROOT, env=env, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL) for k in range(2)]
+    try:
+        from celery import Celery
+        client = Celery(broker=redis_url, backend=redis_url, set_as_current=False)
+        # Batches of 4 units: the nightly task spreads six batches, a chord ends in the ranking.
+        client.conf.task_routes = {}
+        ranges = batches.fleet_batches(4)
+        batches.fleet_means(today=timezone.localdate(), batches=ranges)
+        from celery import chord, signature
+        header = [signature("scheduling.fleet_refresh_batch", args=(a, b, timezone.localdate().isoformat()),
+                            app=client) for a, b in ranges]
+        result = chord(header, app=client)(signature("scheduling.rank_priorities", app=client))
+        summary = result.get(timeout=120)
+        assert summary["need_work"] == sum(1 for r in whole.values() if r["priority"])
+        done_by = {r["first_id"]: r for r in result.parent.get(timeout=10)} if result.parent else {}
+        assert len(done_by) in (0, len(ranges))
+        assert_same(stored(), whole)
+    finally:
+        for w in workers:
+            w.terminate()
+        for w in workers:
+            try:
+                w.wait(timeout=20)
+            except subprocess.TimeoutExpired:
+                w.kill()

@@ -1,0 +1,144 @@
+"""Each unit's fitted parts and recent hires, packed beside its history
+(scheduling/parts.py, recent.py): every way of changing fitted parts writes
+the pack again, the loader reads the same arrays from packs as from rows,
+and a pack that went stale behind the register's back is found and repaired.
+
+The reference here is the project's own row reading (the SQL the loader used
+before packs); the packs are a faster copy of it, so equality is the check.
+"""
+
+import datetime as dt
+import io
+
+import numpy as np
+import pytest
+from django.core.management import call_command
+from django.utils import timezone
+
+from fleet.models import Rental, UnitCapacitor
+from front import workflows
+from scheduling import parts as P
+from scheduling import recent as R
+from scheduling.loader import load_fleet, recent_use
+from scheduling.models import ThermalHistory
+from scheduling.services import forecast_refresh
+from scheduling.thermal import parts_verify, thermal_sync
+from tests.base import build_fleet, make_unit
+
+TODAY = dt.date(2026, 6, 1)
+
+
+def _pack_matches_rows(unit_id):
+    h = ThermalHistory.objects.get(unit_id=unit_id)
+    rows = P.read_rows([unit_id])
+    return bytes(h.parts) == P.pack(rows) and h.parts_version == h.unit.records_version
+
+
+@pytest.fixture
+def fleet(db):
+    f = build_fleet()
+    f.other = make_unit(f.gear_model, f.location, asset_tag="NMB-0002", serial="BA-80-2002",
+                        joined_on=dt.date(2024, 1, 10))
+    forecast_refresh(today=TODAY)
+    return f
+
+
+def test_a_new_unit_is_packed_at_its_first_refresh(fleet):
+    assert _pack_matches_rows(fleet.unit.pk) and _pack_matches_rows(fleet.other.pk)
+    assert P.unpack_many([ThermalHistory.objects.get(unit=fleet.unit).parts]).size == 3
+
+
+def test_a_recap_packs_the_new_parts(fleet):
+    workflows.service_record_recap(unit_id=fleet.unit.pk, performed_on=dt.date(2025, 5, 2),
+                                   replacements={"C1": {"rated_temp_c": 105, "rated_life_h": 8000}})
+    assert _pack_matches_rows(fleet.unit.pk)
+    packed = P.unpack_many([ThermalHistory.objects.get(unit=fleet.unit).parts])
+    c1 = packed[packed["position_id"] == fleet.gear_model.positions.get(designator="C1").pk][0]
+    assert (c1["rated_life_h"], c1["is_original"]) == (8000.0, False)
+
+
+def test_a_check_in_packs_the_hire_it_closes(fleet):
+    out = timezone.now() - dt.timedelta(days=3)
+    workflows.rental_check_out(unit_id=fleet.other.pk, job_ref="J-1", out_at=out, override_reason="test hire")
+    workflows.rental_check_in(unit_id=fleet.other.pk, in_at=out + dt.timedelta(days=2), venue_ambient_c=31.0,
+                              powered_hours=20.0)
+    hires = np.frombuffer(bytes(ThermalHistory.objects.get(unit=fleet.other).recent), dtype=R.HIRE_ROW,
+                          offset=len(R.TAG) + 8)
+    assert hires.size == 1 and (hires["powered_h"][0], hires["ambient_c"][0]) == (20.0, 31.0)
+    assert hires["in_day"][0] - hires["out_day"][0] == pytest.approx(2.0)
+
+
+def test_a_unit_added_by_csv_import_is_packed_with_its_parts(fleet, tmp_path):
+    call_command("export_fleet", str(tmp_path), stdout=io.StringIO())
+    lines = (tmp_path / "units.csv").read_text().splitlines()
+    header = lines[0].split(",")
+    row = lines[1].split(",")
+    row[header.index("asset_tag")], row[header.index("serial")] = "NMB-0099", "BA-99-0099"
+    (tmp_path / "new.csv").write_text("\n".join([lines[0], ",".join(row)]) + "\n")
+    workflows.import_csv(str(tmp_path / "new.csv"), name="units.csv")
+    new = ThermalHistory.objects.get(unit__asset_tag="NMB-0099")
+    assert _pack_matches_rows(new.unit_id)
+    assert P.unpack_many([new.parts]).size == 3
+
+
+def test_the_loader_reads_the_same_arrays_from_packs_as_from_rows(fleet):
+    out = timezone.now() - dt.timedelta(days=40)
+    workflows.rental_check_out(unit_id=fleet.unit.pk, job_ref="J-2", out_at=out, override_reason="test hire")
+    workflows.rental_check_in(unit_id=fleet.unit.pk, in_at=out + dt.timedelta(days=1), venue_ambient_c=28.0,
+                              powered_hours=9.0)
+    today = timezone.localdate()
+    packed = load_fleet(today=today)
+    ThermalHistory.objects.update(parts_version=-1)  # every pack counts as stale: rows are read
+    from_rows = load_fleet(today=today)
+    for name in ("cap_id", "unit_index", "position_index", "capacitance_f", "rated_life_h", "esr0_ohm",
+                 "installed_day", "is_original", "use_powered_h_per_year", "use_out_h_per_year",
+                 "use_ambient_c", "use_hires_per_year"):
+        np.testing.assert_array_equal(getattr(packed, name), getattr(from_rows, name), err_msg=name)
+    assert packed.use_hires_per_year.tolist() == [1.0, 0.0]
+
+
+def test_window_sums_equal_the_grouped_sql(fleet):
+    start = timezone.now() - dt.timedelta(days=500)
+    for k in range(12):  # hires every 40 days, some before the twelve-month window
+        out = start + dt.timedelta(days=40 * k)
+        Rental.objects.create(unit=fleet.unit, job_ref=f"J{k}", out_at=out, in_at=out + dt.timedelta(hours=30 + k),
+                              powered_hours=5.0 + k, venue_ambient_c=20.0 + k)
+    from fleet.services import units_mark_changed
+    units_mark_changed(unit_ids=[fleet.unit.pk])
+    thermal_sync(unit_ids=[fleet.unit.pk])
+    today = timezone.localdate()
+    since = dt.datetime.combine(today - dt.timedelta(days=365), dt.time(0), tzinfo=dt.timezone.utc)
+    blob = bytes(ThermalHistory.objects.get(unit=fleet.unit).recent)
+    p, o, a, n = (x[0] for x in R.window_sums([blob], since.timestamp() / 86400.0))
+    sql = recent_use([fleet.unit.pk], today)[fleet.unit.pk]
+    assert n == sql[3] and 0 < n < 12
+    assert p == pytest.approx(sql[0], rel=1e-12) and o == pytest.approx(sql[1], rel=1e-9)
+    assert a == pytest.approx(sql[2], rel=1e-12)
+
+
+def test_a_pack_older_than_the_day_asked_for_falls_back_to_the_rows(fleet):
+    blob = bytes(ThermalHistory.objects.get(unit=fleet.unit).recent)
+    assert R.complete_from_many([blob])[0] == pytest.approx(
+        (timezone.now() - dt.timedelta(days=R.KEEP_DAYS)).timestamp() / 86400.0, abs=0.01)
+    # a forecast for a day three years back needs hires the pack no longer holds: same figures as the SQL
+    old = load_fleet(today=TODAY - dt.timedelta(days=3 * 365), unit_ids=[fleet.unit.pk])
+    assert old.use_hires_per_year.tolist() == [0.0]
+
+
+def test_a_pack_changed_behind_the_registers_back_is_found_and_repaired(fleet):
+    UnitCapacitor.objects.filter(unit=fleet.unit, position__designator="C7").update(rated_life_h=3000)
+    assert parts_verify() == [fleet.unit.pk]
+    buf = io.StringIO()
+    with pytest.raises(SystemExit):
+        call_command("verify_parts", stdout=buf)
+    assert "NMB-0001" in buf.getvalue()
+    call_command("verify_parts", "--repair", stdout=io.StringIO())
+    assert parts_verify() == []
+    packed = P.unpack_many([ThermalHistory.objects.get(unit=fleet.unit).parts])
+    assert 3000.0 in packed["rated_life_h"].tolist()
+
+
+def test_verify_parts_refuses_an_unknown_tag(fleet):
+    from django.core.management.base import CommandError
+    with pytest.raises(CommandError, match="No unit with asset tag NOPE-1"):
+        call_command("verify_parts", "NOPE-1")
