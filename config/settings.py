@@ -248,6 +248,11 @@ else:
         "polling_interval": 0.2,
     }
     CELERY_RESULT_BACKEND = None
+    for _sub in ("queue", "processed", "control"):  # the folder broker needs them before the first message
+        try:
+            (CELERY_FOLDER / _sub).mkdir(parents=True, exist_ok=True)
+        except OSError:
+            pass
 CELERY_TASK_ALWAYS_EAGER = env_bool("CELERY_TASK_ALWAYS_EAGER", False)
 # The nightly refresh sends its batches to all workers (a chord; needs the
 # Redis result backend) when on; else one worker goes through the batches.

@@ -52,10 +52,12 @@ def fleet_batches(batch_units=REFRESH_BATCH_UNITS):
     return [(int(ids[k]), int(ids[min(k + batch_units, ids.size) - 1])) for k in range(0, ids.size, batch_units)]
 
 
-def first_pass_sums(batches, *, today, min_history_days):
+def first_pass_sums(batches, *, today, min_history_days, keep=None):
     """First pass: the sums behind every gear model's mean recent use, batch
     by batch (only each unit's packed recent hires are read).  Returns
-    (gear model ids, sums as ``forecast.model_use_sums`` gives)."""
+    (gear model ids, sums as ``forecast.model_use_sums`` gives).  ``keep``,
+    a dict, is given each batch's use arrays (a few floats a unit) for the
+    second pass to reuse."""
     model_ids = np.array(GearModel.objects.order_by("pk").values_list("pk", flat=True), dtype=np.int64)
     index = {int(m): k for k, m in enumerate(model_ids.tolist())}
     total = None
@@ -63,6 +65,8 @@ def first_pass_sums(batches, *, today, min_history_days):
         units = unit_rows(id_range=(first, last))
         hist = history_rows(id_range=(first, last), columns=("recent", "parts_version"))
         p, o, a, n = use_arrays(units, hist, today=today, min_history_days=min_history_days)
+        if keep is not None:
+            keep[(first, last)] = (np.array([u[0] for u in units], dtype=np.int64), p, o, a, n)
         sums = model_use_sums(np.array([index[u[2]] for u in units], dtype=np.int64), model_ids.size, p, o, a, n)
         total = sums if total is None else {k: total[k] + v for k, v in sums.items()}
     if total is None:
@@ -70,12 +74,12 @@ def first_pass_sums(batches, *, today, min_history_days):
     return model_ids, total
 
 
-def forecast_batch(first_id, last_id, *, today, model_means, **options):
+def forecast_batch(first_id, last_id, *, today, model_means, use=None, **options):
     """Forecast and store the units with ids in [first_id, last_id] (not
     retired) with the fleet's gear-model means; priorities are left as
     place-holders for ``priorities_rank``.  Returns (units forecast, units
     that could not be, seconds by stage)."""
-    run = forecast_compute(id_range=(first_id, last_id), today=today, model_means=model_means, **options)
+    run = forecast_compute(id_range=(first_id, last_id), today=today, model_means=model_means, use=use, **options)
     started = time.perf_counter()
     with transaction.atomic():
         _store(run)
@@ -99,13 +103,13 @@ class FleetRefresh:
     seconds: dict = field(default_factory=dict)
 
 
-def fleet_means(*, today, batch_units=REFRESH_BATCH_UNITS, min_history_days=None, batches=None):
+def fleet_means(*, today, batch_units=REFRESH_BATCH_UNITS, min_history_days=None, batches=None, keep=None):
     """The first pass alone: keep the fleet's gear-model means (``ModelUse``)
     and return them with the batches (for workers to use)."""
     opts = _options_from()
     batches = fleet_batches(batch_units) if batches is None else batches
     model_ids, sums = first_pass_sums(batches, today=today,
-                                     min_history_days=min_history_days or opts.min_history_days)
+                                      min_history_days=min_history_days or opts.min_history_days, keep=keep)
     return batches, model_use_store(model_ids, sums, today)
 
 
@@ -117,11 +121,13 @@ def fleet_refresh(*, today=None, batch_units=REFRESH_BATCH_UNITS, progress=None,
     today = today or timezone.localdate()
     report = FleetRefresh(today=today)
     t0 = time.perf_counter()
+    use = {}
     batches, means = fleet_means(today=today, batch_units=batch_units,
-                                 min_history_days=_options_from(**_engine_only(options)).min_history_days)
+                                 min_history_days=_options_from(**_engine_only(options)).min_history_days, keep=use)
     report.seconds["means"] = time.perf_counter() - t0
     for first, last in batches:
-        n, bad, _ = forecast_batch(first, last, today=today, model_means=means, **options)
+        n, bad, _ = forecast_batch(first, last, today=today, model_means=means, use=use.pop((first, last), None),
+                                   **options)
         report.forecast, report.cannot_forecast = report.forecast + n, report.cannot_forecast + bad
         report.batches += 1
         if progress:

@@ -293,14 +293,16 @@ def stored_model_means(model_ids):
             for j, name in enumerate(names)}
 
 
-def load_fleet(*, unit_ids=None, today, min_history_days=180, id_range=None, model_means="stored"):
+def load_fleet(*, unit_ids=None, today, min_history_days=180, id_range=None, model_means="stored", use=None):
     """Everything the engine needs, as arrays (see FleetArrays).
 
     ``unit_ids`` (a list) or ``id_range`` (first, last) choose the units;
     all when neither.  ``model_means``: the gear models' mean use to fill
     units without history ("stored": those of the last fleet refresh, for a
     forecast of a few units; None: from the units loaded; or a dict of
-    arrays as ``forecast.model_use_means`` gives)."""
+    arrays as ``forecast.model_use_means`` gives).  ``use``: the units'
+    recent use as a first pass read it (unit ids, then ``use_arrays``'s
+    four arrays), taken when the units loaded are the same."""
     units = unit_rows(unit_ids=unit_ids, id_range=id_range)
     ids = [u[0] for u in units]
     filter_ids = None if unit_ids is None and id_range is None else ids
@@ -330,8 +332,11 @@ def load_fleet(*, unit_ids=None, today, min_history_days=180, id_range=None, mod
     temps = location_monthly_temps({u[3] for u in units})
     monthly = np.array([temps[u[3]] for u in units]).reshape(n, 12)
 
-    use_p, use_o, use_a, use_n = use_arrays(units, histories, today=today, min_history_days=min_history_days,
-                                            joined_day=joined_day)
+    if use is not None and np.array_equal(use[0], unit_ids_arr):
+        use_p, use_o, use_a, use_n = use[1:]
+    else:
+        use_p, use_o, use_a, use_n = use_arrays(units, histories, today=today, min_history_days=min_history_days,
+                                                joined_day=joined_day)
     caps, cap_unit_index = _fitted_parts(units, histories, unit_ids_arr)
     del histories, rows
 

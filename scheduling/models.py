@@ -91,7 +91,10 @@ class UnitForecast(models.Model):
     positions = models.BinaryField(help_text="Per-position results, see scheduling/services.py")
 
     class Meta:
-        indexes = [models.Index(fields=["status", "due_date"]), models.Index(fields=["priority"])]
+        indexes = [models.Index(fields=["status", "due_date"]), models.Index(fields=["priority"]),
+                   # placing one unit among those that need work (services.priorities_place)
+                   models.Index(fields=["score"], condition=models.Q(priority__isnull=False),
+                                name="forecast_needs_work_by_score")]
 
     def __str__(self):
         return f"{self.unit_id}: {self.status} {self.due_date}"

@@ -10,6 +10,8 @@ which day it is complete; a forecast for an earlier day reads the hires
 table instead.
 """
 
+import struct
+
 import numpy as np
 
 #: One closed hire: check-out and check-in as float days since 1970-01-01
@@ -33,8 +35,8 @@ def is_pack(blob):
 
 def complete_from_many(blobs):
     """The day from which each pack is complete (float days; inf: not a pack)."""
-    return np.array([np.frombuffer(b, dtype="<f8", count=1, offset=len(TAG))[0] if is_pack(b) else np.inf
-                     for b in blobs], dtype=float)
+    head = struct.Struct("<d")
+    return np.array([head.unpack_from(b, len(TAG))[0] if is_pack(b) else np.inf for b in blobs], dtype=float)
 
 
 def window_sums(blobs, since_day):
@@ -43,9 +45,8 @@ def window_sums(blobs, since_day):
     powered-hours-weighted venue ambient [degC] (NaN: none) and the number
     of hires.  The same figures ``loader.recent_use`` groups in SQL."""
     n = len(blobs)
-    views = [np.frombuffer(b, dtype=HIRE_ROW, offset=_HEAD) for b in blobs]
-    counts = np.fromiter((v.size for v in views), dtype=np.int64, count=n)
-    rows = np.concatenate(views) if counts.sum() else np.zeros(0, dtype=HIRE_ROW)
+    counts = np.fromiter(((len(b) - _HEAD) // HIRE_ROW.itemsize for b in blobs), dtype=np.int64, count=n)
+    rows = np.frombuffer(b"".join(memoryview(b)[_HEAD:] for b in blobs), dtype=HIRE_ROW)
     unit = np.repeat(np.arange(n), counts)
     take = rows["in_day"] >= since_day
     rows, unit = rows[take], unit[take]

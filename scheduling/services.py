@@ -15,6 +15,7 @@ import time
 
 import numpy as np
 from django.db import DEFAULT_DB_ALIAS, connection, connections, transaction
+from django.db.models import Q
 from django.utils import timezone
 
 from fleet.models import Unit
@@ -134,7 +135,8 @@ class ForecastRun:
 
 
 def forecast_compute(*, unit_ids=None, today=None, law=None, activation_energy_ev=None, esr_feedback=False,
-                     weibull_shape=None, frailty_sigma=None, policy=None, id_range=None, model_means="stored"):
+                     weibull_shape=None, frailty_sigma=None, policy=None, id_range=None, model_means="stored",
+                     use=None):
     """Compute forecasts without storing them; returns a ForecastRun.
 
     The whole fleet (no ``unit_ids``, no ``id_range``) fills units without
@@ -146,7 +148,7 @@ def forecast_compute(*, unit_ids=None, today=None, law=None, activation_energy_e
     policy_row = policy or active_policy()
     started = time.perf_counter()
     fleet = load_fleet(unit_ids=unit_ids, today=today, min_history_days=options.min_history_days,
-                       id_range=id_range, model_means=model_means)
+                       id_range=id_range, model_means=model_means, use=use)
     sums = None
     if unit_ids is None and id_range is None:
         sums = fleet_use_sums(fleet)
@@ -208,6 +210,44 @@ def priorities_rank():
 
 #: Key of the advisory lock that serialises priorities_rank on PostgreSQL.
 RANK_LOCK_KEY = 7_301_001
+#: A refresh of at most this many units places them among the fleet's
+#: priorities at once and leaves the renumbering of the rest to a background
+#: job; a larger one renumbers the fleet itself.
+PLACE_AT_MOST = 20
+
+
+def priorities_place(run):
+    """Give each unit of a refresh of a few units that needs work its place
+    among the fleet's priorities now (1 + the units that need work ranked
+    before it, by the order of ``priorities_rank``: one counting query per
+    unit), and queue ``scheduling.rank_priorities`` to renumber the rest
+    once the transaction commits.  Until that job runs, two units may share a
+    number; the order they are listed in is right at once."""
+    ids = run.fleet.unit_id.tolist()
+    if not ids:
+        return
+    rows = UnitForecast.objects.filter(unit_id__in=ids, priority__isnull=False).values_list("unit_id", "score",
+                                                                                            "act_by")
+    needing = UnitForecast.objects.filter(priority__isnull=False)
+    for unit_id, score, act_by in rows:
+        if act_by is None:
+            tied = Q(act_by__isnull=False) | Q(unit_id__lt=unit_id)
+        else:
+            tied = Q(act_by__lt=act_by) | Q(act_by=act_by, unit_id__lt=unit_id)
+        # two counts, the first a range of the partial index on score alone
+        place = (needing.filter(score__gt=score).count()
+                 + needing.filter(tied, score=score).exclude(unit_id=unit_id).count() + 1)
+        UnitForecast.objects.filter(unit_id=unit_id).update(priority=place)
+    transaction.on_commit(_queue_ranking)
+
+
+def _queue_ranking():
+    from .tasks import rank_priorities  # the tasks call the services, not the other way round
+
+    try:
+        rank_priorities.delay()
+    except Exception:  # noqa: BLE001 - a broker that is down must not fail a desk's check-in
+        log.exception("Could not queue the renumbering of priorities; the nightly refresh will do it.")
 
 
 def _day_dates(days):
@@ -338,7 +378,10 @@ def forecast_refresh(*, unit_ids=None, today=None, sync=True, **options):
             missing = set(unit_ids) - set(run.fleet.unit_id.tolist()) - {u.unit_id for u in run.unforecastable}
             if missing:
                 UnitForecast.objects.filter(unit_id__in=missing).delete()
-        priorities_rank()
+        if unit_ids is None or len(unit_ids) > PLACE_AT_MOST:
+            priorities_rank()
+        else:
+            priorities_place(run)
     run.seconds["store"] = time.perf_counter() - started  # for the benchmark's breakdown
     for unit in run.unforecastable:
         log.warning("Cannot forecast %s: %s", unit.asset_tag, "; ".join(unit.reasons))

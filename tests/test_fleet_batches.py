@@ -113,7 +113,7 @@ def _ranked_in_python():
     return {unit_id: k + 1 for k, (unit_id, _, _) in enumerate(rows)}
 
 
-def test_priorities_stay_numbered_across_the_fleet_after_a_check_in(small_fleet):
+def test_priorities_stay_numbered_across_the_fleet_after_a_check_in(small_fleet, django_capture_on_commit_callbacks):
     batches.fleet_refresh(batch_units=7)
     before = {u: p for u, p in UnitForecast.objects.filter(priority__isnull=False).values_list("unit_id", "priority")}
     assert before == _ranked_in_python() and sorted(before.values()) == list(range(1, len(before) + 1))
@@ -122,8 +122,10 @@ def test_priorities_stay_numbered_across_the_fleet_after_a_check_in(small_fleet)
                 and not Unit.objects.get(pk=u.pk).rentals.filter(in_at__isnull=True).exists())
     out = timezone.now() - dt.timedelta(hours=2)
     workflows.rental_check_out(unit_id=unit.pk, job_ref="HOT-1", out_at=out, override_reason="test hire")
-    workflows.rental_check_in(unit_id=unit.pk, in_at=out + dt.timedelta(hours=1), venue_ambient_c=45.0,
-                              powered_hours=1.0)
+    with django_capture_on_commit_callbacks(execute=True) as queued:  # the renumbering job, run inline
+        workflows.rental_check_in(unit_id=unit.pk, in_at=out + dt.timedelta(hours=1), venue_ambient_c=45.0,
+                                  powered_hours=1.0)
+    assert len(queued) == 1
     after = {u: p for u, p in UnitForecast.objects.filter(priority__isnull=False).values_list("unit_id", "priority")}
     assert after == _ranked_in_python() and sorted(after.values()) == list(range(1, len(after) + 1))
     # The first in line whose parts, not its circuit, are the trouble is recapped
@@ -132,82 +134,24 @@ def test_priorities_stay_numbered_across_the_fleet_after_a_check_in(small_fleet)
                  if "new part" not in " ".join(UnitForecast.objects.get(unit_id=u).reasons))
     score = UnitForecast.objects.get(unit_id=first).score
     designators = list(UnitCapacitor.objects.filter(unit_id=first).values_list("position__designator", flat=True))
-    workflows.service_record_recap(unit_id=first, performed_on=timezone.localdate(),
-                                   replacements={d: {} for d in designators})
+    with django_capture_on_commit_callbacks(execute=True):
+        workflows.service_record_recap(unit_id=first, performed_on=timezone.localdate(),
+                                       replacements={d: {} for d in designators})
     final = {u: p for u, p in UnitForecast.objects.filter(priority__isnull=False).values_list("unit_id", "priority")}
     assert UnitForecast.objects.get(unit_id=first).score < score and final.get(first) != after[first]
     assert final == _ranked_in_python() and sorted(final.values()) == list(range(1, len(final) + 1))
     assert priorities_rank() == 0  # nothing left to renumber
 
 
-def test_the_nightly_task_runs_the_batches_in_one_worker_without_redis(small_fleet, settings):
-    settings.RECAP_PARALLEL_REFRESH = False
-    out = tasks.fleet_nightly_refresh.delay().get()
-    assert (out["forecast"], out["cannot_forecast"]) == (21, 1)
-    assert UnitForecast.objects.count() == 22
-
-
-@pytest.mark.parametrize("args, words", [
-    ((0, 5, "2026-01-01"), "first_id must be a positive whole number"),
-    ((3, "9", "2026-01-01"), "last_id must be a positive whole number"),
-    ((9, 3, "2026-01-01"), "last_id (3) is before first_id (9)"),
-    ((1, 3, "01/02/2026"), "today_iso must be a date written YYYY-MM-DD"),
-    ((1, 3, None), "today_iso must be a date written YYYY-MM-DD"),
-])
-def test_a_batch_task_refuses_bad_arguments(db, args, words):
-    with pytest.raises(ValueError) as exc:
-        tasks.fleet_refresh_batch.delay(*args)
-    assert words in str(exc.value)
-    assert not UnitForecast.objects.exists()
-
-
-def test_fleet_batches_refuses_a_bad_size(db):
-    with pytest.raises(ValueError, match="batch_units must be a whole number of at least 1"):
-        batches.fleet_batches(0)
-
-
-def _database_url():
-    s = connection.settings_dict
-    if connection.vendor == "sqlite":
-        return f"sqlite:///{s['NAME']}"
-    return f"postgres://{s['USER']}@{s['HOST'] or '127.0.0.1'}:{s['PORT'] or 5432}/{s['NAME']}"
-
-
-@pytest.mark.redis
-def test_two_workers_on_redis_store_what_one_pass_stores(transactional_db, redis_url, settings):
-    if connection.vendor == "sqlite" and connection.settings_dict["NAME"].startswith(("file:", ":memory:")):
-        pytest.skip("the workers need a file database; set the SQLite TEST NAME")
-    _small_fleet()
-    forecast_refresh()
-    whole = stored()
-    UnitForecast.objects.all().delete()
-    env = dict(os.environ, REDIS_URL=redis_url, DATABASE_URL=_database_url(), DJANGO_SETTINGS_MODULE="config.settings",
-               RECAP_PARALLEL_REFRESH="true", CELERY_TASK_ALWAYS_EAGER="false")
-    workers = [subprocess.Popen(
-        [sys.executable, "-m", "celery", "-A", "config", "worker", "--pool=solo", "--without-mingle",
-         "--without-gossip", "--without-heartbeat", "--loglevel=WARNING", "-n", f"batch{k}-{os.getpid()}@%h"],
-        cwd=ROOT, env=env, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL) for k in range(2)]
-    try:
-        from celery import Celery
-        client = Celery(broker=redis_url, backend=redis_url, set_as_current=False)
-        # Batches of 4 units: the nightly task spreads six batches, a chord ends in the ranking.
-        client.conf.task_routes = {}
-        ranges = batches.fleet_batches(4)
-        batches.fleet_means(today=timezone.localdate(), batches=ranges)
-        from celery import chord, signature
-        header = [signature("scheduling.fleet_refresh_batch", args=(a, b, timezone.localdate().isoformat()),
-                            app=client) for a, b in ranges]
-        result = chord(header, app=client)(signature("scheduling.rank_priorities", app=client))
-        summary = result.get(timeout=120)
-        assert summary["need_work"] == sum(1 for r in whole.values() if r["priority"])
-        done_by = {r["first_id"]: r for r in result.parent.get(timeout=10)} if result.parent else {}
-        assert len(done_by) in (0, len(ranges))
-        assert_same(stored(), whole)
-    finally:
-        for w in workers:
-            w.terminate()
-        for w in workers:
-            try:
-                w.wait(timeout=20)
-            except subprocess.TimeoutExpired:
-                w.kill()
+def test_a_unit_refreshed_alone_takes_its_place_at_once(small_fleet):
+    """Before the renumbering job runs, the unit refreshed already stands
+    where the full ranking puts it (others may share a number meanwhile)."""
+    batches.fleet_refresh(batch_units=7)
+    needing = UnitForecast.objects.filter(priority__isnull=False)
+    last = needing.order_by("-priority").first()
+    # The three first in line drop behind it (their scores change, their numbers not yet).
+    ahead = list(needing.order_by("priority").values_list("unit_id", flat=True)[:3])
+    UnitForecast.objects.filter(unit_id__in=ahead).update(score=0.0)
+    forecast_refresh(unit_ids=[last.unit_id], sync=False)
+    place = UnitForecast.objects.get(unit_id=last.unit_id).priority
+    assert place == _ranked_in_python()[last.unit_id] == last.priority - 3
