@@ -219,9 +219,12 @@ def _capacitance_words(farads):
 def _implausible(found, fa, k, bad):
     """Reasons for parts no real capacitor could be: the first of charge, ESR
     and ripple heating that is wrong, per capacitor."""
-    j = {int(i): n for n, i in enumerate(k.tolist())}
     charge, esr = bad["charge"], bad["esr"] & ~bad["charge"]
     ripple = bad["ripple"] & ~bad["charge"] & ~bad["esr"]
+    if not (charge.any() or esr.any() or ripple.any()):
+        return  # the usual case: no lookup table over every part needed
+    flagged_rows = k[charge | esr | ripple]
+    j = dict(zip(flagged_rows.tolist(), np.flatnonzero(charge | esr | ripple).tolist()))
 
     def name(i):
         return found.part(int(fa.position_index[i]))

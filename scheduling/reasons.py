@@ -1,6 +1,7 @@
 """The reasons a forecast gives, in words a technician can act on."""
 
 import functools
+import math
 
 import numpy as np
 
@@ -21,9 +22,14 @@ ROLE_WORDS = {
 YEAR_ONLY_AFTER_DAYS = 730
 
 
-@functools.lru_cache(maxsize=4096)
+@functools.lru_cache(maxsize=65536)
 def _month(day):
     return f"{day_to_date(day):%b %Y}"
+
+
+@functools.lru_cache(maxsize=65536)
+def _year(day):
+    return day_to_date(day).year
 
 
 @functools.lru_cache(maxsize=4096)
@@ -38,13 +44,14 @@ MONTH_NAMES = ("Jan", "Feb", "Mar", "Apr", "May", "Jun", "Jul", "Aug", "Sep", "O
 
 def _since(day, today_day):
     """``since about 1993`` (long ago: the year) or ``since about Mar 2025``."""
+    whole = math.floor(day)
     if today_day - day > YEAR_ONLY_AFTER_DAYS:
-        return f"since about {day_to_date(day).year}"
-    return f"since about {_month(int(np.floor(day)))}"
+        return f"since about {_year(whole)}"
+    return f"since about {_month(whole)}"
 
 
 def _when(day, today_day):
-    return _since(day, today_day) if day < today_day else f"by {_month(int(np.floor(day)))}"
+    return _since(day, today_day) if day < today_day else f"by {_month(math.floor(day))}"
 
 
 def _pct(p):
