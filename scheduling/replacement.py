@@ -5,9 +5,14 @@ published source):
 
 - the same capacitance; where the original value is not in the IEC 60063 E24
   series (an unusual value), the nearest E12 value;
-- a rated voltage at least the original's and at least ``VOLTAGE_MARGIN``
-  times the working voltage, rounded up to the usual rated voltages of
-  aluminium electrolytics (``RATED_VOLTAGES_V``);
+- a rated voltage (:func:`replacement_voltage`): the smallest of the usual
+  rated voltages of aluminium electrolytics (``RATED_VOLTAGES_V``) that is at
+  least the original's and, where the working voltage is known, at least
+  ``VOLTAGE_MARGIN`` times it; but for a high-voltage can (an original rated
+  ``HIGH_VOLTAGE_V`` or more) never past the next usual rating above the
+  original's (a 450 V filter can gets at most 500 V: 550 V and 600 V cans are
+  scarce and larger, and may not fit), and never below the working voltage
+  itself;
 - rated at 105 degC (``REPLACEMENT_TEMP_C``);
 - an endurance at least the original's and at least ``MIN_ENDURANCE_H``,
   rounded up to the usual endurance steps (``ENDURANCE_STEPS_H``);
@@ -35,7 +40,12 @@ RATED_VOLTAGES_V = (4.0, 6.3, 10.0, 16.0, 25.0, 35.0, 50.0, 63.0, 80.0, 100.0, 1
 #: Endurance ratings series are commonly offered in [h at the rated temperature] (common practice).
 ENDURANCE_STEPS_H = (1000.0, 2000.0, 3000.0, 4000.0, 5000.0, 6000.0, 7000.0, 8000.0, 10000.0, 12000.0, 15000.0,
                      20000.0)
+#: Rated voltage over the working voltage a replacement should have (common practice).
 VOLTAGE_MARGIN = 1.25
+#: From this rated voltage up a can counts as high-voltage: the margin stops at the
+#: next usual rating above the original's (common practice; such cans are scarce and
+#: grow quickly with their rating).
+HIGH_VOLTAGE_V = 160.0
 REPLACEMENT_TEMP_C = 105.0
 MIN_ENDURANCE_H = 2000.0
 LOW_ESR_ROLES = ("pump_flying", "pump_reservoir")
@@ -72,6 +82,34 @@ def _round_up(value, steps):
     return value  # beyond the table: keep the exact figure
 
 
+def _next_above(value, steps):
+    """The first step strictly above ``value`` (``value`` itself beyond the table)."""
+    for step in steps:
+        if step > value + 1e-9:
+            return step
+    return value
+
+
+def replacement_voltage(rated_voltage_v, operating_voltage_v=0.0):
+    """The rated voltage to buy in place of a part rated ``rated_voltage_v``
+    working at ``operating_voltage_v`` (0 or None: not known).  Common practice:
+
+    - the smallest usual rating (``RATED_VOLTAGES_V``) at least the original's
+      and at least ``VOLTAGE_MARGIN`` times the working voltage;
+    - for a high-voltage can (original rated ``HIGH_VOLTAGE_V`` or more) at most
+      the next usual rating above the original's: 450 V gives 450 V, or 500 V
+      when the margin asks for more, never 550 V or 600 V;
+    - never below the working voltage itself (rounded up to a usual rating),
+      even where that passes the cap (a can run above its own rating).
+    """
+    working = max(operating_voltage_v or 0.0, 0.0)
+    wanted = _round_up(max(rated_voltage_v, VOLTAGE_MARGIN * working), RATED_VOLTAGES_V)
+    if rated_voltage_v < HIGH_VOLTAGE_V:
+        return wanted
+    floor = _round_up(max(rated_voltage_v, working), RATED_VOLTAGES_V)
+    return max(floor, min(wanted, _next_above(rated_voltage_v, RATED_VOLTAGES_V)))
+
+
 @dataclass(frozen=True)
 class Replacement:
     capacitance_uf: float
@@ -94,7 +132,7 @@ def recommend(*, capacitance_uf, rated_voltage_v, rated_life_h, diameter_mm, mou
     if not capacitance_uf > 0 or not rated_voltage_v > 0 or not rated_life_h > 0 or not diameter_mm > 0:
         raise ValueError("capacitance, rated voltage, endurance and can diameter must be above zero")
     value = capacitance_uf if in_series(capacitance_uf, "E24") else nearest_in_series(capacitance_uf, "E12")
-    volts = _round_up(max(rated_voltage_v, VOLTAGE_MARGIN * max(operating_voltage_v or 0.0, 0.0)), RATED_VOLTAGES_V)
+    volts = replacement_voltage(rated_voltage_v, operating_voltage_v)
     life = _round_up(max(rated_life_h, MIN_ENDURANCE_H), ENDURANCE_STEPS_H)
     return Replacement(capacitance_uf=float(f"{value:.6g}"), rated_voltage_v=volts, rated_temp_c=REPLACEMENT_TEMP_C,
                        rated_life_h=life, max_diameter_mm=float(diameter_mm), mount=mount,

@@ -83,8 +83,9 @@ def parts_list_pdf_bytes(pl, *, title="Parts list"):
     story.append(_p(escape(
         f"Replacement parts for the positions to replace in the first {len(pl.unit_tags)} units that need work "
         f"({', '.join(pl.unit_tags[:30])}{' ...' if len(pl.unit_tags) > 30 else ''}): {pl.to_fit} to fit, "
-        f"{pl.to_order} to order with spares. Same capacitance (an IEC 60063 value), rated voltage at least the "
-        "original's and 1.25 times the working voltage, 105 \u00b0C, endurance at least the original's and 2,000 h, "
+        f"{pl.to_order} to order with spares. Same capacitance (an IEC 60063 value), the smallest usual rated "
+        "voltage at least the original's and 1.25 times the working voltage (a can rated 160 V or more at most one "
+        "usual rating above its original's), 105 \u00b0C, endurance at least the original's and 2,000 h, "
         "a can no wider than the original, the same mount; low ESR only for pump parts (common practice). Spares: "
         "10 % rounded up, at least one a line.")))
     story.append(Spacer(1, 2 * mm))

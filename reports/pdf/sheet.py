@@ -231,7 +231,9 @@ def sheet_story(sheet, *, key=0, on_draw=None):
         story.append(_p("Life used: damage so far against the damage this position can take in its circuit. "
                         "ESR now: predicted, not measured; \u201cdried out\u201d past twice the endurance-test "
                         "drift, beyond the range the drift law is calibrated for. "
-                        "Replacement: same capacitance, rated voltage at least the original's, 105 \u00b0C, "
+                        "Replacement: same capacitance, the smallest usual rated voltage at least the original's and 1.25 times "
+                        "the working voltage (a can rated 160 V or more at most one usual rating above its original's, "
+                        "never below the working voltage), 105 \u00b0C, "
                         "endurance at least the original's and at least 2,000 h, can no wider than the original "
                         "(common practice).", "small"))
     else:

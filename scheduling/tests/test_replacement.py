@@ -60,3 +60,49 @@ def test_nonsense_is_refused():
                     role="general")
     with pytest.raises(ValueError):
         R.nearest_in_series(-1.0)
+
+
+# The rated-voltage rule (common practice, no single source): the smallest usual rating at least
+# the original's and 1.25 x the working voltage; a high-voltage can goes at most one usual rating
+# above its original; never below the working voltage.
+
+
+def _volts(original, working=0.0):
+    return R.recommend(capacitance_uf=47, rated_voltage_v=original, rated_life_h=2000, diameter_mm=25,
+                       mount="radial", role="supply_reservoir", operating_voltage_v=working).rated_voltage_v
+
+
+def test_a_450_v_filter_can_gets_at_most_500_v_never_600_v():
+    assert _volts(450, 470.0) == 500.0   # 1.25 x 470 = 587.5 would be 600 V: capped at the next rating
+    assert _volts(450, 440.0) == 500.0   # 1.25 x 440 = 550 V: capped at 500 V
+    assert _volts(450, 380.0) == 500.0   # 1.25 x 380 = 475 V: 500 V, the smallest usual rating above
+    assert _volts(450, 300.0) == 450.0   # 375 V asked: the original's 450 V is enough
+    assert _volts(450) == 450.0          # working voltage not known: the original's rating
+    assert _volts(500, 470.0) == 550.0   # 587.5 V asked: one rating above 500 V
+
+
+def test_the_cap_never_goes_below_the_working_voltage():
+    # a can run above its own rating (520 V on a 450 V can): at least 550 V, the first rating above 520 V
+    assert _volts(450, 520.0) == 550.0
+
+
+def test_low_voltage_parts_keep_the_whole_margin():
+    assert _volts(16, 15.0) == 25.0      # 18.75 V asked: 25 V, two ratings above the original
+    assert _volts(63, 60.0) == 80.0      # 75 V asked
+    assert _volts(10) == 10.0
+    assert _volts(40) == 50.0            # an unusual original rating goes up to the next usual one
+
+
+def test_the_suggestion_is_the_smallest_usual_rating_that_meets_the_rule():
+    for original in R.RATED_VOLTAGES_V:
+        for working in (0.0, 0.3 * original, 0.8 * original, original, 1.1 * original):
+            v = _volts(original, working)
+            assert v in R.RATED_VOLTAGES_V or v > R.RATED_VOLTAGES_V[-1]   # beyond the table: the exact figure
+            assert v >= original and v >= working
+            smaller = [r for r in R.RATED_VOLTAGES_V if original <= r < v and r >= working]
+            # no smaller usual rating would meet the margin (below the high-voltage cap)
+            for r in smaller:
+                assert r < R.VOLTAGE_MARGIN * working
+            if original >= R.HIGH_VOLTAGE_V and working <= original:
+                above = [r for r in R.RATED_VOLTAGES_V if r > original]
+                assert v <= (above[0] if above else original)
