@@ -1,12 +1,15 @@
 """The due list and the parts list drawn as PDF tables."""
 
+import functools
 from xml.sax.saxutils import escape
 
 from reportlab.lib.units import mm
+from reportlab.lib.utils import simpleSplit
 from reportlab.platypus import Paragraph, Spacer, Table, TableStyle
 
 from .. import formatting as fmt
-from .base import FONT_BOLD, MARGIN, MEASURE_TINT, PAGE, REPLACE_TINT, SheetStart, build, styles, wrap
+from .base import (FONT, FONT_BOLD, MARGIN, MEASURE_TINT, MUTED, PAGE, REPLACE_TINT, SheetStart, build, style,
+                   styles, wrap)
 from .sheet import CELL_SIZE, _grid_style
 
 WIDTH = PAGE[0] - 2 * MARGIN
@@ -70,6 +73,26 @@ def due_list_pdf_bytes(dl, *, title="Due list"):
     return build(story, title=title, footer=FOOTER)
 
 
+#: Lines of positions one table row holds at most; a longer list goes on in the rows after it,
+#: so no row is taller than a page.
+POSITION_LINES_PER_ROW = 30
+
+
+def _position_chunks(text, width):
+    """The positions of one parts line as Paragraphs (wrapped in the cell,
+    nothing cut off), at most ``POSITION_LINES_PER_ROW`` lines each."""
+    lines = simpleSplit(text or "", FONT, CELL_SIZE, width)
+    if not lines:
+        return [""]
+    groups = [lines[k:k + POSITION_LINES_PER_ROW] for k in range(0, len(lines), POSITION_LINES_PER_ROW)]
+    return [Paragraph(escape(" ".join(group)), _cell_style()) for group in groups]
+
+
+@functools.cache
+def _cell_style():
+    return style("positions", CELL_SIZE, leading=CELL_SIZE * 1.2)
+
+
 PART_COLUMNS = (("Value", 52), ("Series", 34), ("Rated V", 40), ("Temp.", 38), ("Endurance", 56),
                 ("Can (max dia. \u00d7 length)", 90), ("Mount", 40), ("Low ESR", 38), ("To fit", 36),
                 ("Spares", 36), ("Order", 36), ("To measure", 44), ("Units", 34), ("Positions", 220))
@@ -94,15 +117,21 @@ def parts_list_pdf_bytes(pl, *, title="Parts list"):
         return build(story, title=title, footer=FOOTER)
     widths = [w for _, w in PART_COLUMNS]
     data = [[wrap(h, w - 5, CELL_SIZE, FONT_BOLD) for h, w in PART_COLUMNS]]
+    continued = []
     for ln in pl.lines:
-        positions = ln.positions_text()
+        chunks = _position_chunks(ln.positions_text(), widths[13] - 5)
         data.append([fmt.capacitance(ln.capacitance_uf), ln.series, fmt.volts(ln.rated_voltage_v),
                      fmt.temperature(ln.rated_temp_c), "\u2265 " + fmt.hours(ln.rated_life_h),
                      f"\u2264 {fmt.can_size(ln.max_diameter_mm, ln.length_mm)}", ln.mount,
                      "yes" if ln.low_esr else "", str(ln.to_fit or ""), str(ln.spares or ""), str(ln.order or ""),
-                     str(ln.to_measure or ""), str(len(ln.units)),
-                     wrap(positions, widths[13] - 5, CELL_SIZE, max_lines=4)])
+                     str(ln.to_measure or ""), str(len(ln.units)), chunks[0]])
+        for chunk in chunks[1:]:   # a very long list goes on in rows of its own, never cut off
+            continued.append(len(data))
+            data.append([f"{fmt.capacitance(ln.capacitance_uf)} {fmt.volts(ln.rated_voltage_v)} (cont.)"]
+                        + [""] * 12 + [chunk])
     style = _grid_style() + [("ALIGN", (8, 1), (12, -1), "RIGHT"), ("FONTNAME", (10, 1), (10, -1), FONT_BOLD)]
+    for i in continued:
+        style += [("SPAN", (0, i), (12, i)), ("TEXTCOLOR", (0, i), (12, i), MUTED)]
     data.append(["Total", "", "", "", "", "", "", "", str(pl.to_fit), str(pl.to_order - pl.to_fit), str(pl.to_order),
                  str(sum(ln.to_measure for ln in pl.lines)), "", ""])
     style += [("FONTNAME", (0, -1), (-1, -1), FONT_BOLD), ("LINEABOVE", (0, -1), (-1, -1), 1.0, "#1d232b")]

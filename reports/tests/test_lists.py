@@ -157,3 +157,38 @@ def test_the_workshop_page_links_the_lists(client, users, small_fleet):
     assert client.get(reverse("parts_list", args=["xls"])).status_code == 404
     client.force_login(users.desk)
     assert client.get(reverse("due_list_pdf")).status_code == 403
+
+
+def _printed_positions(data):
+    """(asset tag, designator) pairs in the parts list PDF's text, each designator
+    taken with the asset tag written before it (a wrapped or continued list included)."""
+    import re
+
+    flat = " ".join(" ".join(page_texts(data)).split())
+    pairs, tag = [], None
+    for m in re.finditer(r"\b(FT-\d{4}):|\b(C\d+)\b", flat):
+        if m.group(1):
+            tag = m.group(1)
+        elif tag is not None:
+            pairs.append((tag, m.group(2)))
+    return pairs, flat
+
+
+def test_the_parts_list_pdf_prints_every_position(small_fleet):
+    pl, data = parts_list_pdf(units=4, today=TODAY)
+    expected = [pos for ln in pl.lines for pos in ln.positions]
+    assert len(expected) > 60, "a long list of positions to wrap"
+    assert max(len(ln.positions_text()) for ln in pl.lines) > 400, "at least one line far wider than its cell"
+    printed, flat = _printed_positions(data)
+    assert sorted(printed) == sorted(expected)
+    assert "\u2026" not in flat and "..." not in flat
+
+
+def test_a_list_longer_than_a_row_goes_on_in_rows_of_its_own(small_fleet, monkeypatch):
+    from reports.pdf import lists
+
+    monkeypatch.setattr(lists, "POSITION_LINES_PER_ROW", 2)
+    pl, data = parts_list_pdf(units=4, today=TODAY)
+    printed, flat = _printed_positions(data)
+    assert sorted(printed) == sorted(pos for ln in pl.lines for pos in ln.positions)
+    assert "(cont.)" in flat
