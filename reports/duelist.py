@@ -153,6 +153,13 @@ class PartLine:
     to_measure: int = 0             # positions to read first (may need a part)
     positions: list = field(default_factory=list)   # (asset tag, designator) to replace
     units: set = field(default_factory=set)
+    hazards: dict = field(default_factory=dict)      # gear model name -> (its hazards in words, [asset tags])
+
+    def hazards_text(self):
+        """ "Maker Model (CB-0011, CB-0013): B+ about 470 V ... | Other Model (CB-0002): tube high voltage",
+        one line; the models without a hazard to mention are left out."""
+        return " | ".join(f"{name} ({', '.join(tags)}): {words}" for name, (words, tags) in self.hazards.items()
+                         if words)
 
     @property
     def spares(self):
@@ -214,10 +221,11 @@ def parts_list(*, units=PARTS_UNITS, today=None):
             if rec["action"] in (REPLACE, MEASURE):
                 actions[int(rec["capacitor_id"])] = int(rec["action"])
     rank = {f.unit_id: f.priority for f in top}
-    caps = sorted(UnitCapacitor.objects.filter(pk__in=list(actions)).select_related("position", "unit"),
+    caps = sorted(UnitCapacitor.objects.filter(pk__in=list(actions)).select_related("position", "unit__gear_model"),
                   key=lambda c: (rank[c.unit_id], fmt.designator_key(c.position.designator)))
     lines = {}
     for c in caps:
+        gm = c.unit.gear_model
         p = c.position
         rep = recommend(capacitance_uf=p.capacitance_uf, rated_voltage_v=max(c.rated_voltage_v, p.rated_voltage_v),
                         rated_life_h=max(c.rated_life_h, p.rated_life_h), diameter_mm=p.diameter_mm, mount=p.mount,
@@ -232,25 +240,39 @@ def parts_list(*, units=PARTS_UNITS, today=None):
         else:
             line.to_measure += 1
         line.units.add(c.unit.asset_tag)
+        tags = line.hazards.setdefault(str(gm), (hazard_words(gm), []))[1]
+        if c.unit.asset_tag not in tags:
+            tags.append(c.unit.asset_tag)
     ordered = sorted(lines.values(), key=lambda ln: (ln.mount, ln.capacitance_uf, ln.rated_voltage_v,
                                                       ln.max_diameter_mm, ln.length_mm, ln.low_esr))
     return PartsList(lines=[ln for ln in ordered if ln.to_fit or ln.to_measure],
                      unit_tags=[f.unit.asset_tag for f in top], today=today, units_asked=units)
 
 
+def hazard_words(gm):
+    """A gear model's hazards in one line: its hazard notes, else its tube and switch-mode
+    flags in words ("" for none; mains alone, nearly every unit's, is not repeated here)."""
+    notes = " ".join((gm.hazard_notes or "").split())
+    if notes:
+        return notes
+    return ", ".join(words for on, words in ((gm.hazard_tube_hv, "tube high voltage"),
+                                             (gm.hazard_smps, "switch-mode supply")) if on)
+
+
 CSV_COLUMNS = ["capacitance_uf", "capacitance", "series", "rated_voltage_v", "rated_temp_c", "min_endurance_h",
                "max_diameter_mm", "length_mm", "mount", "low_esr", "to_fit", "spares", "order", "to_measure",
-               "units", "positions"]
+               "units", "positions", "hazard_notes"]
 
 
 def parts_csv_rows(plist):
-    """The parts list as CSV rows (header first); units stored units, not words."""
+    """The parts list as CSV rows (header first); units stored units, not words.  ``hazard_notes``:
+    the hazards of the gear models the line's parts go into (whoever orders and fits them reads it)."""
     yield CSV_COLUMNS
     for ln in plist.lines:
         yield [f"{ln.capacitance_uf:g}", fmt.capacitance(ln.capacitance_uf), ln.series, f"{ln.rated_voltage_v:g}",
                f"{ln.rated_temp_c:g}", f"{ln.rated_life_h:g}", f"{ln.max_diameter_mm:g}", f"{ln.length_mm:g}",
                ln.mount, "yes" if ln.low_esr else "no", ln.to_fit, ln.spares, ln.order, ln.to_measure,
-               len(ln.units), ln.positions_text()]
+               len(ln.units), ln.positions_text(), ln.hazards_text()]
 
 
 __all__ = ["due_list", "due_forecasts", "parts_list", "parts_csv_rows", "series_of", "E6", "E12", "E24"]

@@ -5,7 +5,7 @@ from xml.sax.saxutils import escape
 
 from reportlab.lib.units import mm
 from reportlab.lib.utils import simpleSplit
-from reportlab.platypus import Paragraph, Spacer, Table, TableStyle
+from reportlab.platypus import KeepTogether, Paragraph, Spacer, Table, TableStyle
 
 from .. import formatting as fmt
 from .base import (FONT, FONT_BOLD, MARGIN, MEASURE_TINT, MUTED, PAGE, REPLACE_TINT, SheetStart, build, style,
@@ -140,4 +140,16 @@ def parts_list_pdf_bytes(pl, *, title="Parts list"):
     story.append(t)
     story.append(_p("To measure: positions to read first; they may need a part if the reading is poor (not in the "
                     "order).", "small"))
+    hazards = {}
+    for ln in pl.lines:
+        for name, (words, tags) in ln.hazards.items():
+            if words:
+                seen = hazards.setdefault(name, (words, []))[1]
+                seen.extend(t for t in tags if t not in seen)
+    if hazards:
+        block = [Spacer(1, 2 * mm), _p("Hazards of the units these parts go into (their models' notes: read the "
+                                       "service sheet's safety box before opening one)", "h3")]
+        block += [Paragraph(f"<b>{escape(name)}</b> ({escape(', '.join(tags))}): {escape(words)}", styles()["bullet"],
+                            bulletText="\u2022") for name, (words, tags) in hazards.items()]
+        story.append(KeepTogether(block))
     return build(story, title=title, footer=FOOTER)

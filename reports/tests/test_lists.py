@@ -192,3 +192,24 @@ def test_a_list_longer_than_a_row_goes_on_in_rows_of_its_own(small_fleet, monkey
     printed, flat = _printed_positions(data)
     assert sorted(printed) == sorted(pos for ln in pl.lines for pos in ln.positions)
     assert "(cont.)" in flat
+
+
+def test_the_parts_list_csv_carries_the_units_hazard_notes(small_fleet):
+    """The bench model's hazard notes (a valve preamp's B+) reach every line, in its own column,
+    and a note a spreadsheet would run as a formula is guarded as the export guards it."""
+    pl, text = parts_list_csv(units=4, today=TODAY)
+    rows = list(csv.DictReader(io.StringIO(text)))
+    assert rows and all("B+ about 380 V: the filter cans hold a lethal charge" in r["hazard_notes"] for r in rows)
+    assert all(r["hazard_notes"].startswith("Fennick Audio Works Tallow 120 (FT-") for r in rows)
+    _, data = parts_list_pdf(units=4, today=TODAY)
+    assert "B+ about 380 V" in " ".join(" ".join(page_texts(data)).split())
+
+    from fleet.models import GearModel
+
+    GearModel.objects.update(maker="=HYPERLINK(\"http://x.example\")")
+    _, text = parts_list_csv(units=4, today=TODAY)
+    rows = list(csv.DictReader(io.StringIO(text)))
+    assert all(r["hazard_notes"].startswith("'=HYPERLINK(") for r in rows)
+    GearModel.objects.update(maker="Fennick Audio Works", hazard_notes="", hazard_tube_hv=True)
+    _, text = parts_list_csv(units=4, today=TODAY)
+    assert all(r["hazard_notes"].endswith(": tube high voltage") for r in csv.DictReader(io.StringIO(text)))
