@@ -192,6 +192,13 @@ class DemoFleetTests(TestCase):
         row = blob[blob["capacitor_id"] == c1.pk][0]
         self.assertFalse(row["measured_day"] != row["measured_day"])  # not NaN
 
+    def test_the_bench_readings_name_the_demo_technician(self):
+        unit = Unit.objects.get(status=Unit.Status.BENCH)
+        username, first_name = next((u[0], u[3]) for u in DEMO_USERS if u[2] == "technician")
+        self.assertEqual({(r.taken_by.username, r.taken_by.get_full_name()) for r in unit.readings.all()},
+                         {(username, first_name)})
+        self.assertEqual(unit.bench_visits.get().opened_by.username, username)
+
     def test_every_unit_has_a_thermal_history_to_today(self):
         self.assertEqual(ThermalHistory.objects.count(), Unit.objects.count())
         # one snapshot per (unit, date) on which parts went in or were read at the bench
@@ -286,6 +293,16 @@ class DemoSetupCommandTests(TestCase):
         self.assertIn(override.forecast_status, ("due", "overdue"))
         run_demo_setup()
         self.assertEqual(CheckoutOverride.objects.count(), 1)
+
+    def test_the_demo_readings_name_the_technician_even_from_an_older_demo(self):
+        from fleet.models import Reading
+
+        technician = get_user_model().objects.get(username="technician")
+        self.assertTrue(Reading.objects.exists())
+        self.assertFalse(Reading.objects.exclude(taken_by=technician).exists())
+        Reading.objects.update(taken_by=None)   # as an older demo_setup left them
+        self.assertIn("Named Idris on the demo's bench readings", run_demo_setup())
+        self.assertFalse(Reading.objects.exclude(taken_by=technician).exists())
 
     def test_a_second_run_resets_a_changed_password(self):
         desk = get_user_model().objects.get(username="desk")

@@ -27,14 +27,17 @@ class Command(BaseCommand):
                             help="Random seed for the demo fleet (default: the scenario's own).")
 
     def handle(self, *args, seed=None, **options):
-        from fixtures.demo_fleet import DEFAULT_SEED, HOUSE_NAME, DemoFleetExists, build_demo_fleet, create_demo_users
+        from fixtures.demo_fleet import (DEFAULT_SEED, HOUSE_NAME, DemoFleetExists, build_demo_fleet,
+                                         create_demo_users, credit_demo_readings, demo_technician)
 
+        users = create_demo_users()   # first: the demo's bench readings name its technician
+        technician = demo_technician()
         if Unit.objects.exists():
             self.stdout.write(f"The database already has {Unit.objects.count()} units; the demo fleet was not built.")
         else:
             started = time.perf_counter()
             try:
-                counts = build_demo_fleet(seed=DEFAULT_SEED if seed is None else seed)
+                counts = build_demo_fleet(seed=DEFAULT_SEED if seed is None else seed, technician=technician)
             except DemoFleetExists as exc:
                 raise CommandError(str(exc)) from None
             self.stdout.write(self.style.SUCCESS(
@@ -47,7 +50,9 @@ class Command(BaseCommand):
 
             run = forecast_refresh()
             self.stdout.write(f"Forecast {run.fleet.n_units} units.")
-        users = create_demo_users()
+        if credit_demo_readings(technician):
+            self.stdout.write(f"Named {technician.get_full_name() or technician.get_username()} on the demo's "
+                              f"bench readings.")
         from fixtures.demo_fleet import add_demo_override
 
         if add_demo_override() is not None:
