@@ -9,10 +9,11 @@ import datetime as dt
 from dataclasses import dataclass, field
 
 import numpy as np
+from django.db import models
 from django.db.models import Count, Sum
 from django.utils import timezone
 
-from fleet.models import Location, Mount, Rental, Role, Unit, UnitCapacitor
+from fleet.models import Location, Mount, Reading, Rental, Role, Unit, UnitCapacitor
 from scheduling import histogram as H
 from scheduling.days import date_to_day, day_to_date
 from scheduling.loader import active_policy
@@ -40,6 +41,44 @@ class UnknownUnit(LookupError):
 
 
 @dataclass
+class LastReading:
+    """A position's latest bench reading of the part fitted now (ESR and/or capacitance)."""
+    taken_on: dt.date
+    by: str                   # a readable name, else the username; "" when not recorded
+    esr_ohm: float = None
+    esr_freq_hz: float = None
+    capacitance_uf: float = None
+    leakage_ua: float = None
+    predicted_esr_ohm: float = None
+    predicted_capacitance_uf: float = None
+
+
+def person(user):
+    """A user as people read the name: the full name, else the username ("" for none)."""
+    if user is None:
+        return ""
+    return user.get_full_name() or user.get_username()
+
+
+def last_readings(unit):
+    """{position id: LastReading} of the unit's fitted parts, in one query: each
+    position's latest reading with a measured ESR or capacitance (readings of
+    parts since replaced are findings, not about the part fitted now)."""
+    qs = (Reading.objects.filter(unit=unit, kind=Reading.Kind.CAPACITOR, part_removed=False)
+          .filter(models.Q(esr_ohm__isnull=False) | models.Q(capacitance_uf__isnull=False))
+          .select_related("taken_by").order_by("position_id", "-taken_at", "-id"))
+    out = {}
+    for r in qs:
+        if r.position_id in out:
+            continue
+        out[r.position_id] = LastReading(
+            taken_on=timezone.localdate(r.taken_at), by=person(r.taken_by), esr_ohm=r.esr_ohm,
+            esr_freq_hz=r.esr_freq_hz, capacitance_uf=r.capacitance_uf, leakage_ua=r.leakage_ua,
+            predicted_esr_ohm=r.predicted_esr_ohm, predicted_capacitance_uf=r.predicted_capacitance_uf)
+    return out
+
+
+@dataclass
 class SheetRow:
     designator: str
     role: str                 # display name
@@ -62,6 +101,7 @@ class SheetRow:
     action_line: str = ""
     replacement: object = None  # scheduling.replacement.Replacement
     rate_per_day: float = None  # projected damage per day (stored with the forecast)
+    last_reading: LastReading = None  # the latest bench reading of the part fitted now
 
     damage_limit: float = 1.0   # the policy's share of the threshold at which a part is due
 
@@ -181,7 +221,8 @@ def _forecast_dict(stored, today):
     }
 
 
-def _rows(caps, stored, policy, today):
+def _rows(caps, stored, policy, today, readings=None):
+    readings = readings or {}
     predicted = {int(r["capacitor_id"]): r for r in stored_positions(stored)} if stored is not None else {}
     rows = []
     for c in caps:
@@ -191,7 +232,7 @@ def _rows(caps, stored, policy, today):
             rated_voltage_v=c.rated_voltage_v, rated_temp_c=c.rated_temp_c, rated_life_h=c.rated_life_h,
             diameter_mm=c.diameter_mm, length_mm=c.length_mm, mount=MOUNT_SHORT.get(c.mount, c.mount),
             installed_on=c.installed_on, original=c.is_original, operating_voltage_v=p.operating_voltage_v or 0.0,
-            damage_limit=policy.damage_limit,
+            damage_limit=policy.damage_limit, last_reading=readings.get(c.position_id),
             replacement=recommend(capacitance_uf=p.capacitance_uf, rated_voltage_v=max(c.rated_voltage_v,
                                   p.rated_voltage_v), rated_life_h=max(c.rated_life_h, p.rated_life_h),
                                   diameter_mm=p.diameter_mm, mount=p.mount, role=p.role,
@@ -289,7 +330,7 @@ def unit_sheet(*, unit_id=None, asset_tag=None, today=None, resistor_ohm=None):
     policy = active_policy()
     caps = sorted(UnitCapacitor.objects.filter(unit=unit).select_related("position"),
                   key=lambda c: fmt.designator_key(c.position.designator))
-    rows = _rows(caps, stored, policy, today)
+    rows = _rows(caps, stored, policy, today, last_readings(unit))
     gm = unit.gear_model
     extra = {} if resistor_ohm is None else {"resistor_ohm": resistor_ohm}
     box = safety_box(designators=[r.designator for r in rows], capacitance_uf=[r.capacitance_uf for r in rows],

@@ -17,9 +17,9 @@ FOOTER = ("Recap Scheduler service sheet \u00b7 predicted figures come from the 
           "\u00b7 this sheet does not replace local electrical codes, the maker's service information or licensed "
           "practice")
 #: The capacitor table: (heading, width in points).
-COLUMNS = (("Ref", 30), ("Role", 56), ("Value", 42), ("Rated V", 30), ("Temp.", 28), ("Can D \u00d7 L", 52),
+COLUMNS = (("Ref", 30), ("Role", 56), ("Value", 42), ("Rated V", 30), ("Temp.", 33), ("Can D \u00d7 L", 52),
            ("Mount", 32), ("Fitted", 48), ("Life used", 40), ("ESR now", 42), ("Action", 40), ("Why", 100),
-           ("Replacement (common practice)", 130), ("ESR read", 40), ("C read", 40), ("Done", 24))
+           ("Replacement (common practice)", 125), ("ESR read", 40), ("C read", 40), ("Done", 24))
 CELL_SIZE = 7.2
 
 
@@ -158,13 +158,36 @@ def _replacement_text(r):
     return wrap(first, width, CELL_SIZE) + "\n" + wrap(second, width, CELL_SIZE)
 
 
+def last_reading_text(reading, width):
+    """ "Last reading 3 Dec 2026 by Idris: ESR 9.72 Ω at 100 Hz (forecast then 3.74 Ω) · C 84 µF ..." """
+    parts = []
+    if reading.esr_ohm is not None:
+        text = f"ESR {fmt.resistance(reading.esr_ohm)}"
+        if reading.esr_freq_hz:
+            text += f" at {fmt.frequency(reading.esr_freq_hz)}"
+        if reading.predicted_esr_ohm:
+            text += f" (forecast then {fmt.resistance(reading.predicted_esr_ohm)})"
+        parts.append(text)
+    if reading.capacitance_uf is not None:
+        text = f"C {fmt.capacitance(reading.capacitance_uf)}"
+        if reading.predicted_capacitance_uf:
+            text += f" (forecast then {fmt.capacitance(reading.predicted_capacitance_uf)})"
+        parts.append(text)
+    if reading.leakage_ua is not None:
+        text = f"leakage {fmt.plain_number(reading.leakage_ua)} {fmt.MICRO}A"
+        parts.append(text)
+    who = f" by {reading.by}" if reading.by else " (by: not recorded)"
+    return wrap(f"Last reading {fmt.date(reading.taken_on)}{who}: " + " \u00b7 ".join(parts), width, CELL_SIZE)
+
+
 def _capacitor_table(sheet):
     widths = [w for _, w in COLUMNS]
     why_w = widths[11] - 5
     head = [wrap(h, w - 5, CELL_SIZE, FONT_BOLD) for h, w in COLUMNS]
     head[3], head[13], head[14] = "Rated\nV", f"ESR read\n({fmt.OHM})", f"C read\n({fmt.MICRO}F)"
     data, style = [head], _grid_style()
-    for i, r in enumerate(sheet.rows, start=1):
+    for r in sheet.rows:
+        i = len(data)
         fitted = ("orig. " if r.original else "new ") + f"{r.installed_on.year}"
         if r.esr_now_ohm is None:
             esr = ""
@@ -181,10 +204,18 @@ def _capacitor_table(sheet):
         row += [esr, r.action.upper() if r.action == "replace" else r.action, wrap(why, why_w, CELL_SIZE, max_lines=3),
                 _replacement_text(r), "", "", TickBox()]
         data.append(row)
+        last = i
+        if r.last_reading is not None:
+            # the latest bench reading on a line of its own under the row, the reference spanning
+            # both (a page never splits them)
+            last = i + 1
+            data.append(["", last_reading_text(r.last_reading, sum(widths[1:]) - 5)] + [""] * (len(widths) - 2))
+            style += [("SPAN", (0, i), (0, last)), ("SPAN", (1, last), (-1, last)), ("LINEABOVE", (1, last),
+                      (-1, last), 0.3, "#c8ced5"), ("TOPPADDING", (1, last), (-1, last), 1)]
         if r.action == "replace":
-            style += [("BACKGROUND", (0, i), (-2, i), REPLACE_TINT), ("FONTNAME", (10, i), (10, i), FONT_BOLD)]
+            style += [("BACKGROUND", (0, i), (-2, last), REPLACE_TINT), ("FONTNAME", (10, i), (10, i), FONT_BOLD)]
         elif r.action == "measure":
-            style += [("BACKGROUND", (0, i), (-2, i), MEASURE_TINT)]
+            style += [("BACKGROUND", (0, i), (-2, last), MEASURE_TINT)]
     style += [("BACKGROUND", (13, 1), (14, -1), "#ffffff"), ("ALIGN", (15, 0), (15, -1), "CENTER"),
               ("VALIGN", (15, 1), (15, -1), "MIDDLE"), ("FONTNAME", (0, 1), (0, -1), FONT_BOLD)]
     t = Table(data, colWidths=widths, repeatRows=1)
@@ -229,7 +260,9 @@ def sheet_story(sheet, *, key=0, on_draw=None):
     if sheet.rows:
         story.append(_capacitor_table(sheet))
         story.append(_p("Life used: damage so far against the damage this position can take in its circuit. "
-                        "ESR now: predicted, not measured; \u201cdried out\u201d past twice the endurance-test "
+                        "ESR now: predicted, not measured; the line under a row is the latest bench reading of the "
+                        "part fitted now, with the forecast's figure when it was taken. "
+                        "\u201cdried out\u201d past twice the endurance-test "
                         "drift, beyond the range the drift law is calibrated for. "
                         "Replacement: same capacitance, the smallest usual rated voltage at least the original's and 1.25 times "
                         "the working voltage (a can rated 160 V or more at most one usual rating above its original's, "

@@ -215,3 +215,44 @@ def test_the_damage_chart_draws_the_worst_positions(sheet_and_pdf):
     at_today = first.life_used[min(range(len(first.years)), key=lambda i: abs(first.years[i] - today_year))]
     assert at_today == pytest.approx(worst, rel=1e-3)
     assert all(v >= 0 and math.isfinite(v) for s in sheet.chart for v in s.life_used)
+
+
+def test_each_read_position_prints_its_latest_bench_reading(bench_unit):
+    """Under a read position's row: its latest reading of the part fitted now (measured ESR and/or
+    capacitance, the forecast's figure then, the date and who took it); an earlier reading, a
+    reading of a part since removed and a position never read print nothing of theirs."""
+    import datetime as dt
+
+    from django.contrib.auth import get_user_model
+    from django.utils import timezone
+
+    from fleet.models import Position, Reading
+
+    unit = bench_unit.unit
+    pos = {p.designator: p for p in Position.objects.filter(gear_model=bench_unit.gear_model)}
+    tamsin = get_user_model().objects.create_user("tvale", first_name="Tamsin", last_name="Vale")
+    nameless = get_user_model().objects.create_user("jbench")
+
+    def at(day, hour):
+        return timezone.make_aware(dt.datetime(2026, 5, day, hour))
+
+    def read(des, when, **fields):
+        Reading.objects.create(unit=unit, kind=Reading.Kind.CAPACITOR, position=pos[des], taken_at=when, **fields)
+
+    read("C1", at(20, 10), taken_by=tamsin, esr_ohm=7.77, esr_freq_hz=100.0)          # older: not shown
+    read("C1", at(28, 11), taken_by=tamsin, esr_ohm=2.46, esr_freq_hz=100.0, capacitance_uf=88.0,
+         predicted_esr_ohm=1.9, predicted_capacitance_uf=93.0)
+    read("C2", at(27, 9), taken_by=nameless, capacitance_uf=39.5)
+    read("C3", at(26, 9), esr_ohm=0.55, esr_freq_hz=10000.0)                             # no one recorded
+    read("C6", at(29, 9), taken_by=tamsin, esr_ohm=6.66, part_removed=True)             # a finding, not shown
+    sheet, data = sheet_pdf(asset_tag=unit.asset_tag, today=TODAY)
+    by_des = {r.designator: r.last_reading for r in sheet.rows}
+    assert by_des["C1"].esr_ohm == 2.46 and by_des["C1"].by == "Tamsin Vale"
+    assert by_des["C5"] is None and by_des["C6"] is None
+    text = " ".join(" ".join(page_texts(data)).split())
+    assert ("Last reading 28 May 2026 by Tamsin Vale: ESR 2.46 Ω at 100 Hz (forecast then 1.9 Ω) · "
+            "C 88 µF (forecast then 93 µF)") in text
+    assert "Last reading 27 May 2026 by jbench: C 39.5 µF" in text
+    assert "Last reading 26 May 2026 (by: not recorded): ESR 0.55 Ω at 10 kHz" in text
+    assert "7.77" not in text and "6.66" not in text
+    assert text.count("Last reading") == 3
