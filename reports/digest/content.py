@@ -5,7 +5,8 @@ number of queries (whatever the fleet's size) and kept as JSON on the
 - counts of units by forecast state and by unit status;
 - what changed since the last digest: units newly held, released from hold or
   the bench, newly due or overdue (from the last digest's snapshot of each
-  unit), recaps recorded, check-outs made against the forecast;
+  unit), recaps recorded and bench readings taken (each with who did it: a
+  readable name, else the username), check-outs made against the forecast;
 - the top of the triage list and how many units need work;
 - the parts to order for the top of the list (``reports.duelist.parts_list``);
 - a small chart: units by act-by month, this month ("now") and the next 11.
@@ -16,7 +17,7 @@ import datetime as dt
 from django.db.models import Count
 from django.utils import timezone
 
-from fleet.models import CheckoutOverride, ServiceRecord, Unit
+from fleet.models import CheckoutOverride, Reading, ServiceRecord, Unit
 from scheduling.models import UnitForecast
 
 from .. import formatting as fmt
@@ -64,12 +65,40 @@ def _capped(items):
     return {"items": items[:CHANGE_ROWS], "more": max(len(items) - CHANGE_ROWS, 0), "count": len(items)}
 
 
+def person(user, typed=""):
+    """Who did it, as people read it: the login's full name, else the name typed on the
+    record, else the username ("" when no one is recorded)."""
+    if user is not None and user.get_full_name():
+        return user.get_full_name()
+    return typed or (user.get_username() if user is not None else "")
+
+
+def _readings(since):
+    """Bench readings taken since ``since``, one item per unit, day and technician:
+    [asset tag, date, who, what was read ("C1, C2, rail B+")], oldest first."""
+    qs = (Reading.objects.filter(taken_at__gte=since).select_related("unit", "position", "taken_by")
+          .order_by("taken_at", "id"))
+    groups = {}
+    for r in qs:
+        day = timezone.localtime(r.taken_at).date()
+        key = (r.unit.asset_tag, day, person(r.taken_by))
+        what = (r.position.designator if r.kind == Reading.Kind.CAPACITOR and r.position_id
+                else f"rail {r.rail_name}".strip())
+        if r.part_removed:
+            what += " (removed part)"
+        items = groups.setdefault(key, [])
+        if what not in items:
+            items.append(what)
+    return [[tag, fmt.date(day), who, ", ".join(sorted(what, key=fmt.designator_key))]
+            for (tag, day, who), what in groups.items()]
+
+
 def _overrides(since):
     """Check-outs the desk recorded against the forecast since ``since``:
     [asset tag, date, who, why]."""
     qs = CheckoutOverride.objects.select_related("unit", "decided_by").filter(decided_at__gte=since)
     return [[o.unit.asset_tag, fmt.date(timezone.localtime(o.decided_at)),
-             (o.decided_by.get_full_name() or o.decided_by.get_username()) if o.decided_by else "",
+             person(o.decided_by),
              o.reason[:160]] for o in qs.order_by("decided_at")]
 
 
@@ -88,10 +117,10 @@ def _changes(snapshot, previous, today):
             newly_due.append([tag, fstatus])
     recaps = ServiceRecord.objects.filter(kind=ServiceRecord.Kind.RECAP).select_related("unit")
     recaps = recaps.filter(performed_on__gte=timezone.localtime(since).date() if since else today - dt.timedelta(7))
-    recapped = [[r.unit.asset_tag, fmt.date(r.performed_on), r.technician_name
-                 or (r.technician.get_username() if r.technician_id else "")]
+    recapped = [[r.unit.asset_tag, fmt.date(r.performed_on), person(r.technician, r.technician_name)]
                 for r in recaps.select_related("technician").order_by("performed_on", "unit__asset_tag")]
     overrides = _overrides(since if since else timezone.now() - dt.timedelta(days=7))
+    readings = _readings(since if since else timezone.now() - dt.timedelta(days=7))
     reasons = dict(Unit.objects.filter(asset_tag__in=held[:CHANGE_ROWS]).values_list("asset_tag", "hold_reason"))
     held = [[tag, reasons.get(tag, "")] for tag in held]
     return {
@@ -102,6 +131,7 @@ def _changes(snapshot, previous, today):
         "released": _capped(released),
         "newly_due": _capped(newly_due),
         "recapped": _capped(recapped),
+        "readings": _capped(readings),
         "overrides": _capped(overrides),
     }
 

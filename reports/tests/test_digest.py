@@ -209,3 +209,61 @@ def test_send_digest_fails_loudly_when_mail_cannot_go(world, settings):
         call_command("send_digest", stdout=io.StringIO())
     assert DigestDelivery.objects.filter(state=DigestDelivery.State.FAILED).count() == 2
     FlakyBackend.failures = 0
+
+
+def test_the_recaps_and_readings_of_the_period_name_who_did_them(world):
+    """A recap by a login with a full name prints the name; one by a login without a name its
+    username; one typed by name only that name.  Readings of the period are listed by unit, day
+    and technician, with what was read; a reading before the last digest is not."""
+    from django.contrib.auth import get_user_model
+
+    from fleet.models import Position, Reading
+    from tests.base import make_user
+
+    first, _ = D.digest_prepare(period="2026-W40", today=dt.date(2026, 10, 1))
+    Reading.objects.create(unit=world.units[0], kind=Reading.Kind.CAPACITOR, esr_ohm=9.0,
+                           position=Position.objects.get(gear_model=world.gear_model, designator="C1"),
+                           taken_at=first.created_at - dt.timedelta(hours=1), taken_by=world.technician)
+    nameless = make_user("technician", "jbench")
+    u0, u1, u2 = world.units
+    ServiceRecord.objects.create(unit=u0, kind=ServiceRecord.Kind.RECAP, performed_on=timezone.localdate(),
+                                 technician=world.technician)
+    ServiceRecord.objects.create(unit=u1, kind=ServiceRecord.Kind.RECAP, performed_on=timezone.localdate(),
+                                 technician=nameless)
+    ServiceRecord.objects.create(unit=u2, kind=ServiceRecord.Kind.RECAP, performed_on=timezone.localdate(),
+                                 technician_name="Wren (visiting)")
+    pos = {p.designator: p for p in Position.objects.filter(gear_model=world.gear_model)}
+    now = timezone.now()
+    for des in ("C2", "C1"):
+        Reading.objects.create(unit=u0, kind=Reading.Kind.CAPACITOR, position=pos[des], esr_ohm=3.0, taken_at=now,
+                               taken_by=world.technician)
+    Reading.objects.create(unit=u0, kind=Reading.Kind.RAIL, rail_name="-5V", rail_measured_v=-3.9, taken_at=now,
+                           taken_by=world.technician)
+    Reading.objects.create(unit=u1, kind=Reading.Kind.CAPACITOR, position=pos["C3"], capacitance_uf=8.0,
+                           taken_at=now, taken_by=nameless)
+    second, _ = D.digest_prepare(period="2026-W41", today=dt.date(2026, 10, 8))
+    changes = second.content["changes"]
+    today = fmt_date(timezone.localdate())
+    assert sorted(changes["recapped"]["items"]) == sorted([[u0.asset_tag, today, "Teo"], [u1.asset_tag, today, "jbench"],
+                                                           [u2.asset_tag, today, "Wren (visiting)"]])
+    assert get_user_model().objects.get(username="teo.tech").get_full_name() == "Teo"
+    assert changes["readings"]["items"] == [[u0.asset_tag, today, "Teo", "C1, C2, rail -5V"],
+                                            [u1.asset_tag, today, "jbench", "C3"]]
+    from reports.digest.render import build_message
+
+    msg = build_message(content=second.content, attachment=b"", user=world.manager, email="m@x.example")
+    text = msg.body
+    html = msg.alternatives[0][0]
+    for part in (text, html):
+        assert f"{u0.asset_tag} on {today} by Teo" in part
+        assert f"{u1.asset_tag} on {today} by jbench" in part
+        assert f"{u2.asset_tag} on {today} by Wren (visiting)" in part
+        assert f"{u0.asset_tag} C1, C2, rail -5V on {today} by Teo" in part
+        assert f"{u1.asset_tag} C3 on {today} by jbench" in part
+    assert "Bench readings (2)" in text
+
+
+def fmt_date(d):
+    from reports import formatting as fmt
+
+    return fmt.date(d)
