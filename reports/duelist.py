@@ -152,6 +152,7 @@ class PartLine:
     to_fit: int = 0                 # positions to replace
     to_measure: int = 0             # positions to read first (may need a part)
     positions: list = field(default_factory=list)   # (asset tag, designator) to replace
+    measure_positions: list = field(default_factory=list)   # (asset tag, designator) to read first
     units: set = field(default_factory=set)
     hazards: dict = field(default_factory=dict)      # gear model name -> (its hazards in words, [asset tags])
 
@@ -178,12 +179,24 @@ class PartLine:
         return (self.capacitance_uf, self.rated_voltage_v, self.rated_temp_c, self.max_diameter_mm, self.length_mm,
                 self.mount, self.low_esr)
 
-    def positions_text(self):
-        """ "CB-0032: C101, C102; CB-0001: C32", in the order the units came."""
+    def positions_text(self, which=None):
+        """ "CB-0032: C101, C102; CB-0001: C32", in the order the units came (the positions
+        to replace, or ``which``)."""
         by_unit = {}
-        for tag, designator in self.positions:
+        for tag, designator in self.positions if which is None else which:
             by_unit.setdefault(tag, []).append(designator)
         return "; ".join(f"{tag}: {', '.join(sorted(ds, key=fmt.designator_key))}" for tag, ds in by_unit.items())
+
+    def measure_text(self):
+        """The positions to read first, as ``positions_text`` writes them."""
+        return self.positions_text(self.measure_positions)
+
+    def where_text(self):
+        """Where the line's parts go and which positions to read first, for the printed list."""
+        text = self.positions_text()
+        if self.measure_positions:
+            text += (" \u00b7 " if text else "") + "measure first: " + self.measure_text()
+        return text
 
     def describe(self):
         text = (f"{fmt.capacitance(self.capacitance_uf)} {fmt.volts(self.rated_voltage_v)} "
@@ -239,6 +252,7 @@ def parts_list(*, units=PARTS_UNITS, today=None):
             line.positions.append((c.unit.asset_tag, p.designator))
         else:
             line.to_measure += 1
+            line.measure_positions.append((c.unit.asset_tag, p.designator))
         line.units.add(c.unit.asset_tag)
         tags = line.hazards.setdefault(str(gm), (hazard_words(gm), []))[1]
         if c.unit.asset_tag not in tags:
@@ -261,18 +275,19 @@ def hazard_words(gm):
 
 CSV_COLUMNS = ["capacitance_uf", "capacitance", "series", "rated_voltage_v", "rated_temp_c", "min_endurance_h",
                "max_diameter_mm", "length_mm", "mount", "low_esr", "to_fit", "spares", "order", "to_measure",
-               "units", "positions", "hazard_notes"]
+               "units", "positions", "measure_positions", "hazard_notes"]
 
 
 def parts_csv_rows(plist):
-    """The parts list as CSV rows (header first); units stored units, not words.  ``hazard_notes``:
+    """The parts list as CSV rows (header first); units stored units, not words.  ``positions``:
+    where the parts go; ``measure_positions``: the positions to read first; ``hazard_notes``:
     the hazards of the gear models the line's parts go into (whoever orders and fits them reads it)."""
     yield CSV_COLUMNS
     for ln in plist.lines:
         yield [f"{ln.capacitance_uf:g}", fmt.capacitance(ln.capacitance_uf), ln.series, f"{ln.rated_voltage_v:g}",
                f"{ln.rated_temp_c:g}", f"{ln.rated_life_h:g}", f"{ln.max_diameter_mm:g}", f"{ln.length_mm:g}",
                ln.mount, "yes" if ln.low_esr else "no", ln.to_fit, ln.spares, ln.order, ln.to_measure,
-               len(ln.units), ln.positions_text(), ln.hazards_text()]
+               len(ln.units), ln.positions_text(), ln.measure_text(), ln.hazards_text()]
 
 
 __all__ = ["due_list", "due_forecasts", "parts_list", "parts_csv_rows", "series_of", "E6", "E12", "E24"]

@@ -48,17 +48,17 @@ def due_list_pdf_bytes(dl, *, title="Due list"):
     data, style = [[wrap(h, w - 5, CELL_SIZE, FONT_BOLD) for h, w in DUE_COLUMNS]], _grid_style()
     for i, r in enumerate(dl.rows, start=1):
         if r.status == "invalid":
-            data.append(["", r.asset_tag, wrap(r.model, widths[2] - 5, CELL_SIZE, max_lines=2),
-                         wrap(r.location, widths[3] - 5, CELL_SIZE, max_lines=2),
+            data.append(["", r.asset_tag, wrap(r.model, widths[2] - 5, CELL_SIZE),
+                         wrap(r.location, widths[3] - 5, CELL_SIZE),
                          r.unit_status.replace("Out on hire", "out"),
-                         wrap(r.status_label, widths[5] - 5, CELL_SIZE, max_lines=2), "fix figures", "", "", "", "",
-                         wrap(r.reason, widths[11] - 5, CELL_SIZE, max_lines=2)])
+                         wrap(r.status_label, widths[5] - 5, CELL_SIZE), "fix figures", "", "", "", "",
+                         wrap(r.reason, widths[11] - 5, CELL_SIZE)])
             continue
         data.append([
-            str(r.priority or ""), r.asset_tag, wrap(r.model, widths[2] - 5, CELL_SIZE, max_lines=2),
-            wrap(r.location, widths[3] - 5, CELL_SIZE, max_lines=2), r.unit_status.replace("Out on hire", "out"),
+            str(r.priority or ""), r.asset_tag, wrap(r.model, widths[2] - 5, CELL_SIZE),
+            wrap(r.location, widths[3] - 5, CELL_SIZE), r.unit_status.replace("Out on hire", "out"),
             r.status_label, fmt.today_or_date(r.act_by, dl.today), fmt.percent(r.hire_risk), fmt.percent(r.risk),
-            str(r.replace or ""), str(r.measure or ""), wrap(r.reason, widths[11] - 5, CELL_SIZE, max_lines=2)])
+            str(r.replace or ""), str(r.measure or ""), wrap(r.reason, widths[11] - 5, CELL_SIZE)])
         if r.status == "overdue":
             style.append(("BACKGROUND", (5, i), (5, i), REPLACE_TINT))
         elif r.status == "due":
@@ -119,7 +119,7 @@ def parts_list_pdf_bytes(pl, *, title="Parts list"):
     data = [[wrap(h, w - 5, CELL_SIZE, FONT_BOLD) for h, w in PART_COLUMNS]]
     continued = []
     for ln in pl.lines:
-        chunks = _position_chunks(ln.positions_text(), widths[13] - 5)
+        chunks = _position_chunks(ln.where_text(), widths[13] - 5)
         data.append([fmt.capacitance(ln.capacitance_uf), ln.series, fmt.volts(ln.rated_voltage_v),
                      fmt.temperature(ln.rated_temp_c), "\u2265 " + fmt.hours(ln.rated_life_h),
                      f"\u2264 {fmt.can_size(ln.max_diameter_mm, ln.length_mm)}", ln.mount,
@@ -138,8 +138,8 @@ def parts_list_pdf_bytes(pl, *, title="Parts list"):
     t = Table(data, colWidths=widths, repeatRows=1)
     t.setStyle(TableStyle(style))
     story.append(t)
-    story.append(_p("To measure: positions to read first; they may need a part if the reading is poor (not in the "
-                    "order).", "small"))
+    story.append(_p("To measure: positions to read first (listed after \u201cmeasure first\u201d); they may need a "
+                    "part if the reading is poor (not in the order).", "small"))
     hazards = {}
     for ln in pl.lines:
         for name, (words, tags) in ln.hazards.items():

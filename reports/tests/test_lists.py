@@ -176,7 +176,8 @@ def _printed_positions(data):
 
 def test_the_parts_list_pdf_prints_every_position(small_fleet):
     pl, data = parts_list_pdf(units=4, today=TODAY)
-    expected = [pos for ln in pl.lines for pos in ln.positions]
+    expected = [pos for ln in pl.lines for pos in ln.positions + ln.measure_positions]
+    assert sum(ln.to_measure for ln in pl.lines) == sum(len(ln.measure_positions) for ln in pl.lines)
     assert len(expected) > 60, "a long list of positions to wrap"
     assert max(len(ln.positions_text()) for ln in pl.lines) > 400, "at least one line far wider than its cell"
     printed, flat = _printed_positions(data)
@@ -190,7 +191,7 @@ def test_a_list_longer_than_a_row_goes_on_in_rows_of_its_own(small_fleet, monkey
     monkeypatch.setattr(lists, "POSITION_LINES_PER_ROW", 2)
     pl, data = parts_list_pdf(units=4, today=TODAY)
     printed, flat = _printed_positions(data)
-    assert sorted(printed) == sorted(pos for ln in pl.lines for pos in ln.positions)
+    assert sorted(printed) == sorted(pos for ln in pl.lines for pos in ln.positions + ln.measure_positions)
     assert "(cont.)" in flat
 
 
@@ -213,3 +214,32 @@ def test_the_parts_list_csv_carries_the_units_hazard_notes(small_fleet):
     GearModel.objects.update(maker="Fennick Audio Works", hazard_notes="", hazard_tube_hv=True)
     _, text = parts_list_csv(units=4, today=TODAY)
     assert all(r["hazard_notes"].endswith(": tube high voltage") for r in csv.DictReader(io.StringIO(text)))
+
+
+def test_positions_to_read_first_are_named_in_the_pdf_and_the_csv():
+    """A line with positions to read first says which (a line may have nothing to fit)."""
+    from reports.duelist import PartLine, PartsList, parts_csv_rows
+    from reports.pdf.lists import parts_list_pdf_bytes
+
+    both = PartLine(10.0, 25.0, 105.0, 5.0, 11.0, "radial", False, rated_life_h=2000.0, to_fit=1, to_measure=2,
+                    positions=[("FT-0001", "C7")], measure_positions=[("FT-0001", "C9"), ("FT-0002", "C8")],
+                    units={"FT-0001", "FT-0002"})
+    only = PartLine(47.0, 16.0, 105.0, 5.0, 11.0, "radial", False, rated_life_h=2000.0, to_measure=1,
+                    measure_positions=[("FT-0003", "C12")], units={"FT-0003"})
+    pl = PartsList(lines=[both, only], unit_tags=["FT-0001", "FT-0002", "FT-0003"], today=TODAY, units_asked=3)
+    flat = " ".join(" ".join(page_texts(parts_list_pdf_bytes(pl))).split())
+    assert "FT-0001: C7 · measure first: FT-0001: C9; FT-0002: C8" in flat
+    assert "measure first: FT-0003: C12" in flat
+    rows = list(parts_csv_rows(pl))
+    at = rows[0].index("measure_positions")
+    assert [r[at] for r in rows[1:]] == ["FT-0001: C9; FT-0002: C8", "FT-0003: C12"]
+    assert [r[rows[0].index("positions")] for r in rows[1:]] == ["FT-0001: C7", ""]
+
+
+def test_the_due_list_prints_each_main_reason_whole(small_fleet):
+    dl, data = due_list_pdf(today=TODAY)
+    flat = " ".join(" ".join(page_texts(data)).split())
+    assert dl.rows and all(r.reason for r in dl.rows)
+    for r in dl.rows:
+        assert " ".join(r.reason.split()) in flat, r.reason
+    assert "\u2026" not in flat
