@@ -79,6 +79,32 @@ def last_readings(unit):
 
 
 @dataclass
+class RailReading:
+    """A supply rail's latest bench reading."""
+    name: str
+    measured_v: float
+    taken_on: dt.date
+    by: str
+    expected_v: float = None
+    load_ma: float = None
+    predicted_v: float = None
+
+
+def last_rail_readings(unit):
+    """The latest reading of each of the unit's supply rails (by name), in one query."""
+    qs = (Reading.objects.filter(unit=unit, kind=Reading.Kind.RAIL).select_related("taken_by")
+          .order_by("-taken_at", "-id"))
+    out = {}
+    for r in qs:
+        name = r.rail_name or "rail"
+        if name not in out:
+            out[name] = RailReading(name=name, measured_v=r.rail_measured_v, taken_on=timezone.localdate(r.taken_at),
+                                    by=person(r.taken_by), expected_v=r.rail_expected_v, load_ma=r.rail_load_ma,
+                                    predicted_v=r.predicted_rail_v)
+    return sorted(out.values(), key=lambda rail: rail.name)
+
+
+@dataclass
 class SheetRow:
     designator: str
     role: str                 # display name
@@ -156,6 +182,7 @@ class UnitSheet:
     chart: list               # ChartSeries, worst first
     chart_today_year: float = None
     damage_limit: float = 1.0
+    rails: list = field(default_factory=list)   # RailReading, the latest of each rail
 
     @property
     def title(self):
@@ -347,5 +374,5 @@ def unit_sheet(*, unit_id=None, asset_tag=None, today=None, resistor_ohm=None):
                  "mains_v": gm.mains_voltage_v},
         model_notes=gm.notes or "", exposure=_exposure(unit), forecast=_forecast_dict(stored, today), rows=rows,
         safety=box, pumps=_pumps(caps, rows), chart=chart, chart_today_year=today_year,
-        damage_limit=policy.damage_limit,
+        damage_limit=policy.damage_limit, rails=last_rail_readings(unit),
     )

@@ -65,6 +65,8 @@ def _summary(sheet):
     counts = sheet.action_counts()
     out.append(_p(f"Capacitors: <b>replace {counts['replace']}</b> \u00b7 measure {counts['measure']} \u00b7 "
                   f"leave {counts['leave']} (of {len(sheet.rows)})."))
+    for rail in sheet.rails:
+        out.append(_p(rail_reading_text(rail)))
     powered = "not counted yet" if ex.powered_total_h is None else fmt.hours(ex.powered_total_h) + " counted"
     out.append(_p(f"<b>Powered hours:</b> {_e(powered)}; {_e(fmt.hours(ex.fleet_powered_h))} of them on "
                   f"{ex.hires} hires since it joined, the rest estimated from the prior-use assumption."))
@@ -156,6 +158,22 @@ def _replacement_text(r):
         second += ", low ESR"
     width = dict(COLUMNS)["Replacement (common practice)"] - 5
     return wrap(first, width, CELL_SIZE) + "\n" + wrap(second, width, CELL_SIZE)
+
+
+def rail_reading_text(rail):
+    """ "<b>Last rail reading:</b> B+ 452 V at 250 mA (expected 470 V), 3 Dec 2026 by Idris." (markup)"""
+    text = f"<b>Last rail reading:</b> {_e(rail.name)} {_e(fmt.volts(rail.measured_v))}"
+    if rail.load_ma:
+        text += f" at {_e(fmt.plain_number(rail.load_ma))} mA"
+    said = []
+    if rail.expected_v is not None:
+        said.append(f"expected {fmt.volts(rail.expected_v)}")
+    if rail.predicted_v is not None:
+        said.append(f"forecast then {fmt.volts(rail.predicted_v)}")
+    if said:
+        text += f" ({_e(', '.join(said))})"
+    who = f" by {rail.by}" if rail.by else " (by: not recorded)"
+    return text + f", {_e(fmt.date(rail.taken_on))}{_e(who)}."
 
 
 def last_reading_text(reading, width):

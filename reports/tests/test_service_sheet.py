@@ -256,3 +256,25 @@ def test_each_read_position_prints_its_latest_bench_reading(bench_unit):
     assert "Last reading 26 May 2026 (by: not recorded): ESR 0.55 Ω at 10 kHz" in text
     assert "7.77" not in text and "6.66" not in text
     assert text.count("Last reading") == 3
+
+
+def test_the_sheet_prints_each_rails_latest_reading(bench_unit):
+    import datetime as dt
+
+    from django.contrib.auth import get_user_model
+    from django.utils import timezone
+
+    from fleet.models import Reading
+
+    unit = bench_unit.unit
+    tamsin = get_user_model().objects.create_user("tvale", first_name="Tamsin", last_name="Vale")
+    for day, volts in ((25, -2.2), (28, -3.9)):
+        Reading.objects.create(unit=unit, kind=Reading.Kind.RAIL, rail_name="-5V", rail_measured_v=volts,
+                               rail_expected_v=-5.0, rail_load_ma=10.0, predicted_rail_v=-4.1, taken_by=tamsin,
+                               taken_at=timezone.make_aware(dt.datetime(2026, 5, day, 10)))
+    sheet, data = sheet_pdf(asset_tag=unit.asset_tag, today=TODAY)
+    assert [(r.name, r.measured_v) for r in sheet.rails] == [("-5V", -3.9)]
+    text = " ".join(" ".join(page_texts(data)).split())
+    assert re.search(r"Last rail reading: -5V [-\u2212]3\.9 V at 10 mA \(expected [-\u2212]5 V, forecast then "
+                     r"[-\u2212]4\.1 V\), 28 May 2026 by Tamsin Vale\.", text), text[:1500]
+    assert "2.2 V" not in text
