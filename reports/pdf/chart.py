@@ -6,6 +6,7 @@ from reportlab.graphics.charts.legends import Legend
 from reportlab.graphics.charts.lineplots import LinePlot
 from reportlab.graphics.shapes import Drawing, Line, String
 from reportlab.lib import colors
+from reportlab.lib.utils import simpleSplit
 
 from .base import DANGER, FONT, INK, MUTED
 
@@ -71,7 +72,10 @@ def damage_chart(series, today_year, *, width=440, height=190):
     legend.dx, legend.dy, legend.deltay = 8, 6, 10
     legend.alignment = "right"
     legend.columnMaximum = 10
-    legend.colorNamePairs = [(PALETTE[k % len(PALETTE)], f"{s.designator} {s.role.lower()}".strip())
+    # labels wrapped to the room right of the plot: nothing runs into what sits beside the chart
+    room = width - legend.x - legend.dx - 6
+    legend.colorNamePairs = [(PALETTE[k % len(PALETTE)],
+                              "\n".join(simpleSplit(f"{s.designator} {s.role.lower()}".strip(), FONT, 7, room)))
                              for k, s in enumerate(series)]
     d.add(legend)
     d.add(String(legend.x, plot.y, "solid: so far (even ageing)", fontName=FONT, fontSize=6.2, fillColor=MUTED))

@@ -277,16 +277,17 @@ def sheet_story(sheet, *, key=0, on_draw=None):
     story.append(_p(f"Capacitors ({len(sheet.rows)}), by reference designator", "h2"))
     if sheet.rows:
         story.append(_capacitor_table(sheet))
-        story.append(_p("Life used: damage so far against the damage this position can take in its circuit. "
-                        "ESR now: predicted, not measured; the line under a row is the latest bench reading of the "
-                        "part fitted now, with the forecast's figure when it was taken. "
-                        "\u201cdried out\u201d past twice the endurance-test "
-                        "drift, beyond the range the drift law is calibrated for. "
-                        "Replacement: same capacitance, the smallest usual rated voltage at least the original's and 1.25 times "
-                        "the working voltage (a can rated 160 V or more at most one usual rating above its original's, "
-                        "never below the working voltage), 105 \u00b0C, "
-                        "endurance at least the original's and at least 2,000 h, can no wider than the original "
-                        "(common practice).", "small"))
+        read = ("the line under a row is the latest bench reading of the part fitted now, with the forecast's "
+                "figure when it was taken. " if any(r.last_reading is not None for r in sheet.rows) else "")
+        # one piece, never split over two pages
+        story.append(KeepTogether([_p(
+            "Life used: damage so far against the damage this position can take in its circuit. "
+            "ESR now: predicted, not measured; " + read + "\u201cdried out\u201d past twice the endurance-test "
+            "drift, beyond the range the drift law is calibrated for. Replacement: same capacitance, the smallest "
+            "usual rated voltage at least the original's and 1.25 times the working voltage (a can rated 160 V or "
+            "more at most one usual rating above its original's, never below the working voltage), 105 \u00b0C, "
+            "endurance at least the original's and at least 2,000 h, can no wider than the original "
+            "(common practice).", "small")]))
     else:
         story.append(_p("No capacitor positions are recorded for this unit."))
     chart = damage_chart(sheet.chart, sheet.chart_today_year, width=WIDTH * 0.56, height=215)

@@ -278,3 +278,23 @@ def test_the_sheet_prints_each_rails_latest_reading(bench_unit):
     assert re.search(r"Last rail reading: -5V [-\u2212]3\.9 V at 10 mA \(expected [-\u2212]5 V, forecast then "
                      r"[-\u2212]4\.1 V\), 28 May 2026 by Tamsin Vale\.", text), text[:1500]
     assert "2.2 V" not in text
+
+
+def test_the_table_note_stays_on_one_page_and_the_chart_legend_fits(sheet_and_pdf):
+    from reportlab.graphics.charts.legends import Legend
+    from reportlab.pdfbase.pdfmetrics import stringWidth
+
+    from reports.pdf.chart import damage_chart
+    from reports.sheets import ChartSeries
+
+    _, data = sheet_and_pdf
+    pages = [" ".join(t.split()) for t in page_texts(data)]
+    start = [n for n, t in enumerate(pages) if "Life used: damage so far" in t]
+    assert len(start) == 1 and "can no wider than the original (common practice)." in pages[start[0]]
+    long = [ChartSeries("C101, C102, C103 +47", "Supply decoupling", [1990.0, 2026.0, 2030.0], [0.0, 0.8, 1.0])]
+    drawing = damage_chart(long, 2026.0, width=440, height=190)
+    legend = next(item for item in drawing.contents if isinstance(item, Legend))
+    for _, label in legend.colorNamePairs:
+        for line in label.split("\n"):
+            assert legend.x + legend.dx + stringWidth(line, FONT, legend.fontSize) <= 440, line
+    assert "supply decoupling" in " ".join(label.replace("\n", " ") for _, label in legend.colorNamePairs)
