@@ -121,13 +121,16 @@ def _changes(snapshot, previous, today):
                 for r in recaps.select_related("technician").order_by("performed_on", "unit__asset_tag")]
     overrides = _overrides(since if since else timezone.now() - dt.timedelta(days=7))
     readings = _readings(since if since else timezone.now() - dt.timedelta(days=7))
-    reasons = dict(Unit.objects.filter(asset_tag__in=held[:CHANGE_ROWS]).values_list("asset_tag", "hold_reason"))
+    held_all = sorted(tag for tag, status, _ in snapshot.values() if status in HELD)
+    reasons = dict(Unit.objects.filter(asset_tag__in=held[:CHANGE_ROWS] + held_all[:CHANGE_ROWS])
+                   .values_list("asset_tag", "hold_reason"))
     held = [[tag, reasons.get(tag, "")] for tag in held]
     return {
         "since": fmt.moment(timezone.localtime(since)) if since else None,
         "first": previous is None,
         "newly_held": _capped(held),
-        "held_now": sum(1 for _, status, _ in snapshot.values() if status in HELD),
+        "held_now": len(held_all),
+        "held_list": _capped([[tag, reasons.get(tag, "")] for tag in held_all]),
         "released": _capped(released),
         "newly_due": _capped(newly_due),
         "recapped": _capped(recapped),

@@ -267,3 +267,19 @@ def fmt_date(d):
     from reports import formatting as fmt
 
     return fmt.date(d)
+
+
+def test_the_digest_names_the_units_held_now_and_why(world):
+    u0, u1, _ = world.units
+    unit_hold(unit_id=u0.pk, reason="came back with a dead -5V rail")
+    Unit.objects.filter(pk=u1.pk).update(status=Unit.Status.HOLD, hold_reason="")
+    digest, _ = D.digest_prepare(period="2026-W40", today=dt.date(2026, 10, 1))
+    changes = digest.content["changes"]
+    assert changes["held_now"] == 2
+    assert sorted(changes["held_list"]["items"]) == sorted([[u0.asset_tag, "came back with a dead -5V rail"],
+                                                           [u1.asset_tag, ""]])
+    from reports.digest.render import build_message
+
+    msg = build_message(content=digest.content, attachment=b"", user=world.manager, email="m@x.example")
+    for part in (msg.body, msg.alternatives[0][0]):
+        assert f"{u0.asset_tag} (came back with a dead -5V rail)" in part
