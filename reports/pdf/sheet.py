@@ -219,7 +219,7 @@ def _capacitor_table(sheet):
                  fmt.temperature(r.rated_temp_c), fmt.can_size(r.diameter_mm, r.length_mm), r.mount, fitted,
                  r.life_used if r.damage is not None else ""]
         row = [wrap(text, w - 5, CELL_SIZE) for text, w in zip(cells, widths)]
-        row += [esr, r.action.upper() if r.action == "replace" else r.action, wrap(why, why_w, CELL_SIZE, max_lines=3),
+        row += [esr, r.action.upper() if r.action == "replace" else r.action, wrap(why, why_w, CELL_SIZE),
                 _replacement_text(r), "", "", TickBox()]
         data.append(row)
         last = i

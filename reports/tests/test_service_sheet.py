@@ -191,6 +191,7 @@ def test_120_positions_stay_readable(sheet_and_pdf):
     assert table_pages <= header_pages
     rows_per_page = N_POSITIONS / len(table_pages)
     assert rows_per_page >= 12, "no page spends its height on a handful of rows"
+    assert "\u2026" not in "".join(page_texts(data)), "no text cut off with an ellipsis"
 
 
 def test_the_sheet_reads_the_exposure_and_the_forecast(sheet_and_pdf, bench_unit):
