@@ -97,7 +97,8 @@ def _safety(sheet, width):
         if slow.discharge_s > 0:
             text = (f"<b>Discharge:</b> through a {_e(fmt.resistance(box.resistor_ohm))} resistor, {_e(slow.designator)} "
                     f"falls below {_e(fmt.volts(box.safe_v))} in <b>{_e(fmt.seconds(slow.discharge_s))}</b> "
-                    f"(t = RC ln(V<sub>0</sub> / {_e(fmt.volts(box.safe_v))}))")
+                    "(" + "t = RC ln(V<sub>0</sub> / ".replace(" ", "\u00a0")
+                    + _e(fmt.volts(box.safe_v)).replace(" ", "\u00a0") + "))")  # the formula never breaks
             if slow.designator != big.designator and big.discharge_s > 0:
                 text += f"; {_e(big.designator)} in {_e(fmt.seconds(big.discharge_s))}"
             text += (f". It starts at {_e(fmt.plain_number(1000 * box.peak_current_a))} mA and "
