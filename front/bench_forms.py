@@ -25,7 +25,8 @@ def capacitance(label, required=False):
     return forms.CharField(
         label=label, required=required, max_length=40,
         help_text="In µF, or with a unit or code: 4u7, 470 uF, 100n.",
-        widget=forms.TextInput(attrs={"autocomplete": "off", "spellcheck": "false", "class": "short"}))
+        widget=forms.TextInput(attrs={"autocomplete": "off", "spellcheck": "false", "class": "short",
+                                      "inputmode": "decimal"}))
 
 
 def clean_capacitance(text):
@@ -49,11 +50,11 @@ class CapacitorReadingForm(PlainForm):
                                  widget=forms.TextInput(attrs={"list": "designators", "autocomplete": "off",
                                                                "autocapitalize": "characters", "class": "short",
                                                                "spellcheck": "false"}))
-    esr_ohm = number("ESR (Ω)")
-    esr_freq_hz = number("Test frequency (Hz)", help_text="The frequency of the part's ESR figure (100/120 Hz "
+    esr_ohm = number("ESR")
+    esr_freq_hz = number("Test frequency", help_text="The frequency of the part's ESR figure (100/120 Hz "
                                                           "unless the register says otherwise).")
     capacitance_uf = capacitance("Capacitance")
-    leakage_ua = number("Leakage (µA)", help_text="Optional; after 2 min at rated voltage.")
+    leakage_ua = number("Leakage", help_text="Optional; after 2 min at rated voltage.")
 
     prefix = "cap"
 
@@ -73,10 +74,10 @@ class CapacitorReadingForm(PlainForm):
 class RailReadingForm(PlainForm):
     rail_name = forms.CharField(label="Rail", max_length=20, error_messages={"required": "Name the rail (e.g. -5V)."},
                                 widget=forms.TextInput(attrs={"autocomplete": "off", "class": "short"}))
-    rail_measured_v = number("Measured (V)", required=True)
-    rail_load_ma = number("Load (mA)", help_text="The current the rail delivers while you measure.")
-    rail_expected_v = number("Expected (V)", help_text="From the schematic; optional.")
-    rail_input_v = number("Input rail (V)", help_text="A charge pump's input, if you measured it too.")
+    rail_measured_v = number("Measured", required=True)
+    rail_load_ma = number("Load", help_text="The current the rail delivers while you measure.")
+    rail_expected_v = number("Expected", help_text="From the schematic; optional.")
+    rail_input_v = number("Input rail", help_text="A charge pump's input, if you measured it too.")
 
     prefix = "rail"
 
@@ -97,7 +98,7 @@ class RecapChoiceForm(PlainForm):
 
 
 REPLACEMENT_FIELDS = (
-    ("capacitance_uf", "Capacitance"), ("rated_voltage_v", "Rated V"), ("rated_temp_c", "°C"),
+    ("capacitance_uf", "Capacitance µF"), ("rated_voltage_v", "Rated V"), ("rated_temp_c", "°C"),
     ("rated_life_h", "Endurance h"), ("diameter_mm", "Ø mm"), ("length_mm", "L mm"),
 )
 
@@ -156,8 +157,16 @@ class RecapForm(PlainForm):
         return out, removed
 
     def bound_rows(self):
-        return [{"cap": r["cap"], "fields": [self[n] for n in r["names"]], "removed": [self[n] for n in r["removed"]]}
-                for r in self.rows]
+        """Per chosen position its bound fields, each with ``short_label`` (the
+        column's heading, which a tablet shows beside the field)."""
+        labels = [label for _, label in REPLACEMENT_FIELDS] + ["Removed part: ESR Ω", "Removed part: capacitance"]
+        rows = []
+        for r in self.rows:
+            bound = [self[n] for n in r["names"] + r["removed"]]
+            for field, label in zip(bound, labels):
+                field.short_label = label
+            rows.append({"cap": r["cap"], "fields": bound[:len(r["names"])], "removed": bound[len(r["names"]):]})
+        return rows
 
 
 class ReleaseForm(PlainForm):

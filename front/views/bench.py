@@ -18,7 +18,7 @@ from fleet.services import ServiceError
 from .. import bench, selectors
 from ..bench_forms import CapacitorReadingForm, IntakeForm, RailReadingForm, RecapChoiceForm, RecapForm, ReleaseForm
 from .access import page, technician_required
-from .display import forecast_display, hazard_words, unit_forecast
+from .display import forecast_display, safety, unit_forecast
 from .readings import reading_rows, reading_summary
 
 
@@ -57,7 +57,7 @@ def _bench_page(request, unit, *, intake=None, cap_form=None, rail_form=None, st
     return page(request, "front/bench.html", {
         "unit": unit,
         "visit": open_visit(unit.pk),
-        "hazards": hazard_words(unit.gear_model),
+        "safety": safety(unit, caps),
         "forecast": forecast_display(unit_forecast(unit)),
         "intake": intake or IntakeForm(),
         "cap_form": cap_form,
@@ -150,7 +150,7 @@ def bench_recap(request, asset_tag):
         "problem": problem, "on_bench": unit.status == Unit.Status.BENCH,
         "low_esr": {c.position.designator for c in chosen if c.position.role in (Role.PUMP_FLYING,
                                                                                  Role.PUMP_RESERVOIR)},
-        "hazards": hazard_words(unit.gear_model),
+        "safety": safety(unit, caps),
     })
 
 
@@ -175,5 +175,6 @@ def bench_release(request, asset_tag):
             return redirect("unit_detail", asset_tag=unit.asset_tag)
     return page(request, "front/bench_release.html", {
         "unit": unit, "form": form, "visit": open_visit(unit.pk),
+        "safety": safety(unit, selectors.unit_capacitors(unit)),
         "forecast": forecast_display(unit_forecast(unit)),
     })
