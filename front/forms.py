@@ -11,10 +11,12 @@ from django.conf import settings
 from django.contrib.auth.validators import UnicodeUsernameValidator
 from django.utils import timezone
 
+from reports import formatting as fmt
+from scheduling.loader import active_policy
 from scheduling.models import UnitForecast
 
 from . import selectors
-from .workflows import OVERRIDE_STATUSES
+from .workflows import OVERRIDE_STATUSES, checkout_forecast_note, checkout_reason_needed
 from fleet.models import AMBIENT_MAX_C, AMBIENT_MIN_C, EARLIEST_DATE, Role, Unit
 from fleet.roles import ROLE_LABELS, ROLES
 
@@ -149,6 +151,25 @@ class CheckOutForm(DeskForm):
         super().__init__(*args, **kwargs)
         self.forecast = None
         self.needs_confirmation = False
+        self.note = ""
+        self.policy = active_policy()
+        if not self.is_bound and self.initial.get("asset_tag"):
+            # a tag from the scan box: say at once what the forecast says, and ask for a reason up front if needed
+            unit = selectors.unit_by_tag(self.initial["asset_tag"])
+            if unit is not None and unit.status == Unit.Status.AVAILABLE:
+                self._weigh(selectors.forecast_for(unit.pk))
+
+    def rule_words(self):
+        """The rule, for the page's help text, with the house policy's figures."""
+        return (f"A reason is asked for only when the unit's forecast cannot be worked out, or when its chance of "
+                f"a fault within {self.policy.horizon_days} days has reached the house limit of "
+                f"{fmt.percent(self.policy.risk_limit)}. A unit whose recap is due or overdue but below that limit "
+                "may go out: the page shows its forecast, and the workshop sees it when it comes back.")
+
+    def _weigh(self, forecast):
+        self.forecast = forecast
+        self.needs_confirmation = bool(checkout_reason_needed(forecast, self.policy))
+        self.note = checkout_forecast_note(forecast, self.policy)
 
     def clean_out_at(self):
         return self.clean_moment("out_at")
@@ -167,19 +188,18 @@ class CheckOutForm(DeskForm):
                                  "not available for hire; the workshop must release it first.")
             return cleaned
         forecast = selectors.forecast_for(self.unit.pk)
-        self.forecast = forecast
-        if forecast is None or forecast.status not in OVERRIDE_STATUSES:
+        self._weigh(forecast)
+        if forecast is None or forecast.status not in OVERRIDE_STATUSES or not self.needs_confirmation:
             return cleaned
-        self.needs_confirmation = True
         if not (cleaned.get("override_reason") or "").strip():
             if forecast.status == UnitForecast.Status.INVALID:
                 message = (f"{self.unit.asset_tag} cannot be forecast: "
                            f"{'; '.join(forecast.reasons or []) or 'its figures are not usable'}. Check with the "
                            "workshop; to send it out anyway, give the reason (it is recorded with your name).")
             else:
-                message = (f"{self.unit.asset_tag} is {forecast.get_status_display().lower()} for a recap and should "
-                           "stay in for the workshop. To send it out anyway, give the reason; it is recorded with "
-                           "your name.")
+                message = (f"{self.unit.asset_tag} is {forecast.get_status_display().lower()} for a recap and "
+                           f"{checkout_reason_needed(forecast, self.policy)}: it should stay in for the workshop. "
+                           "To send it out anyway, give the reason; it is recorded with your name.")
             self.add_error("override_reason", message)
         return cleaned
 

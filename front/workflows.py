@@ -6,8 +6,8 @@ call alike, in one transaction:
 - ``unit_create``: add a unit with its capacitor population and start its
   thermal history; ``unit_refresh``: bring one unit's history and forecast
   up to date after an edit;
-- ``rental_check_out``: the desk hands a unit out; against a due or overdue
-  forecast only with a recorded reason;
+- ``rental_check_out``: the desk hands a unit out; only with a recorded
+  reason when the forecast says it matters (``checkout_reason_needed``);
 - ``rental_check_in``: the unit comes back: close the hire, add its exposure,
   recompute the unit's forecast at once and hold it when it is due, overdue or
   came back with a fault; ``return_verdict`` words the answer for the desk;
@@ -31,6 +31,7 @@ from fleet import services as register
 from fleet.models import ServiceRecord, Unit
 from fleet.services import ServiceError  # noqa: F401  (raised through here; callers catch it from either)
 from reports import formatting as fmt
+from scheduling.loader import active_policy
 from scheduling.models import UnitForecast
 from scheduling.services import forecast_refresh
 from scheduling.thermal import thermal_sync
@@ -52,35 +53,91 @@ def unit_refresh(*, unit_id):
     forecast_refresh(unit_ids=[unit_id])
 
 
-#: Forecasts a check-out may only go against with a recorded reason.
+#: Forecasts a check-out may go against with a recorded reason: a reason given for one of these is kept
+#: with who, when and what the forecast said.  Whether one is *needed* is ``checkout_reason_needed``.
 OVERRIDE_STATUSES = (UnitForecast.Status.DUE, UnitForecast.Status.OVERDUE, UnitForecast.Status.INVALID)
 
 
 class OverrideNeeded(ServiceError):
-    """The forecast says due or overdue: the check-out needs a recorded reason."""
+    """The forecast says the hire is a real risk: the check-out needs a recorded reason."""
+
+
+def checkout_reason_needed(forecast, policy=None):
+    """Why a check-out needs a recorded reason, in words for the desk, or ""
+    when it does not.
+
+    In vintage gear nearly every original part is past its rated life, so
+    "due" or "overdue" alone (a part past its damage limit, an original part
+    past the calendar-age limit) says the workshop should recap the unit, not
+    that it will fail on this hire: the triage's act-by date is "now" for every
+    overdue unit.  A reason is needed only when
+
+    - the unit's forecast cannot be worked out (no one can say what it risks), or
+    - its chance of a fault within the policy horizon, given that it works
+      today (the forecast's risk), has reached the house limit
+      (``MaintenancePolicy.risk_limit``): the unit is likely to fail soon.
+
+    Otherwise the desk is shown the forecast as information
+    (:func:`checkout_forecast_note`).
+    """
+    if forecast is None:
+        return ""
+    if forecast.status == UnitForecast.Status.INVALID:
+        return "its forecast cannot be worked out"
+    if forecast.status not in OVERRIDE_STATUSES or forecast.risk is None:
+        return ""
+    policy = policy or active_policy()
+    if forecast.risk >= policy.risk_limit:
+        return (f"its chance of a fault within {forecast.horizon_days} days is {fmt.percent(forecast.risk)}, "
+                f"at or above the house limit of {fmt.percent(policy.risk_limit)}")
+    return ""
+
+
+def checkout_forecast_note(forecast, policy=None, today=None):
+    """What the desk is told about a unit that may go out without a reason
+    but whose recap is coming or due: "Recap overdue: the workshop would take
+    it now (priority 14). If it works today, chance of a fault within 90 days
+    6.1 %, below the house limit of 10 %: it may go out; send it to the
+    workshop when it comes back."  "" for a unit with nothing to say."""
+    if forecast is None or checkout_reason_needed(forecast, policy):
+        return ""
+    today = today or timezone.localdate()
+    policy = policy or active_policy()
+    if forecast.status in (UnitForecast.Status.DUE, UnitForecast.Status.OVERDUE):
+        when = "now" if forecast.act_by is None or forecast.act_by <= today else f"by {fmt.date(forecast.act_by)}"
+        prio = f", priority {forecast.priority}" if forecast.priority else ""
+        return (f"Recap {forecast.get_status_display().lower()}: the workshop would take it {when}{prio}. "
+                f"If it works today, chance of a fault within {forecast.horizon_days} days "
+                f"{fmt.percent(forecast.risk)}, below the house limit of {fmt.percent(policy.risk_limit)}: "
+                "it may go out; the workshop sees it when it comes back.")
+    if forecast.status == UnitForecast.Status.WATCH and forecast.due_date:
+        return f"Recap coming up by {fmt.date_ahead(forecast.due_date, today)}; it may go out."
+    return ""
 
 
 @transaction.atomic
 def rental_check_out(*, unit_id, job_ref, out_at=None, expected_ambient_c=25.0, user=None, override_reason=""):
     """Check a unit out on a hire (see ``fleet.services.rental_open``).
 
-    A unit whose stored forecast is due or overdue, or cannot be worked out,
-    goes out only with ``override_reason``: who, when and why are stored with
-    what the forecast said (``OverrideNeeded`` otherwise).  A reason given
-    for a unit the forecast does not stop is not recorded.
+    A unit for which :func:`checkout_reason_needed` says a reason is needed
+    goes out only with ``override_reason`` (``OverrideNeeded`` otherwise).  A
+    reason given for a unit whose forecast is due, overdue or cannot be
+    worked out is stored with who, when and what the forecast said; one given
+    for a unit the forecast does not question is not recorded.
     """
     forecast = UnitForecast.objects.filter(unit_id=unit_id).first()
     override = None
     if forecast is not None and forecast.status in OVERRIDE_STATUSES:
         unit = Unit.objects.get(pk=unit_id)
-        if unit.status == Unit.Status.AVAILABLE and not (override_reason or "").strip():
-            said = ("cannot be forecast" if forecast.status == UnitForecast.Status.INVALID
-                    else f"is {forecast.get_status_display().lower()} for a recap")
+        why = checkout_reason_needed(forecast)
+        reason = (override_reason or "").strip()
+        if unit.status == Unit.Status.AVAILABLE and why and not reason:
             raise OverrideNeeded(
-                f"{unit.asset_tag} {said}; it should stay in for the workshop.  To send it out anyway, give the "
+                f"{unit.asset_tag}: {why}; it should stay in for the workshop.  To send it out anyway, give the "
                 "reason (it is recorded with your name).")
-        override = {"reason": override_reason, "forecast_status": forecast.status,
-                    "forecast_due_date": forecast.due_date, "forecast_risk": forecast.risk}
+        if reason:
+            override = {"reason": override_reason, "forecast_status": forecast.status,
+                        "forecast_due_date": forecast.due_date, "forecast_risk": forecast.risk}
     return register.rental_open(unit_id=unit_id, job_ref=job_ref, out_at=out_at,
                                 expected_ambient_c=expected_ambient_c, user=user, override=override)
 

@@ -18,6 +18,8 @@ from scheduling.reasons import action_words
 from scheduling.services import stored_positions
 from scheduling.triage import ACTION_NAMES, LEAVE, MEASURE, REPLACE
 
+from ..workflows import checkout_forecast_note, checkout_reason_needed
+
 #: Order of the actions on the pages: what to do first at the top.
 ACTION_ORDER = {REPLACE: 0, MEASURE: 1, LEAVE: 2}
 ACTION_LABELS = {REPLACE: "Replace", MEASURE: "Measure", LEAVE: "Leave"}
@@ -329,9 +331,15 @@ def desk_card(unit, forecast, rentals, today=None):
                 "details": [*(forecast.reasons or []),
                             "Send it out only if the workshop agrees; the check-out asks for it."]}
     if due:
-        return {"go": False, "word": "Check with the workshop",
-                "headline": f"Recap {forecast.get_status_display().lower()}: it should stay in",
-                "details": ["Send it out only if the workshop agrees; the check-out asks for a reason."]}
+        why = checkout_reason_needed(forecast)
+        if why:
+            return {"go": False, "word": "Check with the workshop",
+                    "headline": f"Recap {forecast.get_status_display().lower()}: it should stay in",
+                    "details": [f"{why[0].upper()}{why[1:]}.",
+                                "Send it out only if the workshop agrees; the check-out asks for a reason."]}
+        return {"go": True, "word": "May go out",
+                "headline": f"May go out; recap {forecast.get_status_display().lower()}",
+                "details": [checkout_forecast_note(forecast, today=today)]}
     if forecast is not None and forecast.status == UnitForecast.Status.WATCH:
         return {"go": True, "word": "May go out",
                 "headline": f"May go out; recap coming up by {fmt.date_ahead(forecast.due_date, today)}",
