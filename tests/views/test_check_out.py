@@ -154,3 +154,96 @@ def test_the_came_back_at_message_is_in_local_time(client, users, fleet):
                                  "out_at": "2024-07-12T17:00", "override_reason": "Workshop agreed"})
     assert response.status_code == 200
     assert "NMB-0001 came back at 12 Jul 2024 17:30; it cannot go out before that." in response.content.decode()
+
+
+# --- when a reason is needed (front.workflows.checkout_reason_needed) ------------------------------
+
+def _forecast(unit, *, status="overdue", risk=0.04, priority=7, act_by=None):
+    return UnitForecast.objects.create(
+        unit=unit, computed_at=timezone.now(), status=status, risk=risk, horizon_days=90, max_damage_ratio=1.4,
+        reasons=["C1 supply reservoir: past its limit"], positions=b"", priority=priority,
+        act_by=act_by or timezone.localdate(), due_date=dt.date(1994, 3, 1))
+
+
+def test_an_overdue_unit_below_the_house_risk_limit_goes_out_without_a_reason(client, users, fleet):
+    """The demo's common case: old parts past their limit, but a 4 % chance of a fault within 90 days
+    against the house limit of 10 %: the desk sees the forecast and is not asked for a reason."""
+    from fleet.models import CheckoutOverride
+
+    _forecast(fleet.unit, risk=0.04)
+    client.force_login(users.desk)
+    page = client.get(URL, {"tag": "NMB-0001"}).content.decode()
+    assert 'name="override_reason"' not in page
+    assert ("Recap overdue: the workshop would take it now, priority 7. If it works today, chance of a fault "
+            "within 90 days 4 %, below the house limit of 10 %: it may go out") in page
+    assert "A reason is asked for only when" in page  # the rule, on the page
+    response = post(client)
+    assert response.status_code == 302
+    assert Rental.objects.get().unit == fleet.unit
+    assert not CheckoutOverride.objects.exists()
+
+
+def test_a_unit_at_the_house_risk_limit_asks_for_the_reason_up_front(client, users, fleet):
+    from fleet.models import CheckoutOverride
+
+    _forecast(fleet.unit, risk=0.10)  # "reached" includes the limit itself
+    client.force_login(users.desk)
+    page = client.get(URL, {"tag": "NMB-0001"}).content.decode()
+    assert 'name="override_reason"' in page
+    response = post(client)
+    assert response.status_code == 200
+    error = " ".join(response.context["form"].errors["override_reason"])
+    assert "chance of a fault within 90 days is 10 %, at or above the house limit of 10 %" in error
+    assert not Rental.objects.exists()
+    assert post(client, override_reason="Workshop checked the rails this morning").status_code == 302
+    override = CheckoutOverride.objects.get()
+    assert (override.reason, override.forecast_status, override.forecast_risk) == (
+        "Workshop checked the rails this morning", "overdue", 0.10)
+    assert override.decided_by == users.desk
+
+
+def test_the_limit_is_the_active_house_policys(client, users, fleet):
+    from fleet.models import MaintenancePolicy
+
+    MaintenancePolicy.objects.update(active=False)
+    MaintenancePolicy.objects.create(name="Strict", active=True, risk_limit=0.03)
+    _forecast(fleet.unit, risk=0.04)
+    client.force_login(users.desk)
+    response = post(client)
+    assert response.status_code == 200 and "house limit of 3 %" in " ".join(
+        response.context["form"].errors["override_reason"])
+
+
+def test_the_workflow_applies_the_same_rule_and_keeps_a_reason_given(fleet):
+    """Commands and tests call the workflow: no reason needed below the limit, and a reason given for a
+    due or overdue unit is recorded as before."""
+    from fleet.models import CheckoutOverride
+    from front.workflows import OverrideNeeded, checkout_reason_needed, rental_check_in
+
+    forecast = _forecast(fleet.unit, risk=0.04)
+    assert checkout_reason_needed(forecast) == ""
+    rental = rental_check_out(unit_id=fleet.unit.pk, job_ref="J-1", out_at=timezone.now() - dt.timedelta(days=3))
+    assert not CheckoutOverride.objects.exists()
+    rental_check_in(unit_id=fleet.unit.pk, in_at=rental.out_at + dt.timedelta(days=1), venue_ambient_c=25,
+                    powered_hours=5)
+    Unit.objects.filter(pk=fleet.unit.pk).update(status=Unit.Status.AVAILABLE)
+    UnitForecast.objects.filter(unit=fleet.unit).update(status="overdue", risk=0.04)
+    rental_check_out(unit_id=fleet.unit.pk, job_ref="J-2", override_reason="Asked the workshop anyway")
+    assert CheckoutOverride.objects.get().reason == "Asked the workshop anyway"
+    Rental.objects.filter(job_ref="J-2").delete()
+    CheckoutOverride.objects.all().delete()
+    Unit.objects.filter(pk=fleet.unit.pk).update(status=Unit.Status.AVAILABLE)
+    UnitForecast.objects.filter(unit=fleet.unit).update(status="invalid", risk=None)
+    with pytest.raises(OverrideNeeded, match="cannot be worked out"):
+        rental_check_out(unit_id=fleet.unit.pk, job_ref="J-3")
+
+
+def test_the_desk_card_follows_the_rule(client, users, fleet):
+    forecast = _forecast(fleet.unit, risk=0.04)
+    client.force_login(users.desk)
+    card = client.get(f"/units/{fleet.unit.asset_tag}/").context["desk"]
+    assert (card["go"], card["word"]) == (True, "May go out")
+    assert "below the house limit of 10 %" in " ".join(card["details"])
+    UnitForecast.objects.filter(pk=forecast.pk).update(risk=0.2)
+    card = client.get(f"/units/{fleet.unit.asset_tag}/").context["desk"]
+    assert (card["go"], card["word"]) == (False, "Check with the workshop")
