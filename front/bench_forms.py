@@ -21,10 +21,9 @@ def number(label, required=False, help_text="", **attrs):
         widget=forms.NumberInput(attrs={**NUMBER, **attrs}))
 
 
-def capacitance(label, required=False):
+def capacitance(label, required=False, help_text="In µF, or with a unit or code: 4u7, 470 uF, 100n."):
     return forms.CharField(
-        label=label, required=required, max_length=40,
-        help_text="In µF, or with a unit or code: 4u7, 470 uF, 100n.",
+        label=label, required=required, max_length=40, help_text=help_text,
         widget=forms.TextInput(attrs={"autocomplete": "off", "spellcheck": "false", "class": "short",
                                       "inputmode": "decimal"}))
 
@@ -51,10 +50,10 @@ class CapacitorReadingForm(PlainForm):
                                                                "autocapitalize": "characters", "class": "short",
                                                                "spellcheck": "false"}))
     esr_ohm = number("ESR")
-    esr_freq_hz = number("Test frequency", help_text="The frequency of the part's ESR figure (100/120 Hz "
-                                                          "unless the register says otherwise).")
-    capacitance_uf = capacitance("Capacitance")
-    leakage_ua = number("Leakage", help_text="Optional; after 2 min at rated voltage.")
+    # the page says once, under the row, what each field wants (front/templates/front/bench.html)
+    esr_freq_hz = number("Test frequency")
+    capacitance_uf = capacitance("Capacitance", help_text="")
+    leakage_ua = number("Leakage")
 
     prefix = "cap"
 
@@ -75,9 +74,9 @@ class RailReadingForm(PlainForm):
     rail_name = forms.CharField(label="Rail", max_length=20, error_messages={"required": "Name the rail (e.g. -5V)."},
                                 widget=forms.TextInput(attrs={"autocomplete": "off", "class": "short"}))
     rail_measured_v = number("Measured", required=True)
-    rail_load_ma = number("Load", help_text="The current the rail delivers while you measure.")
-    rail_expected_v = number("Expected", help_text="From the schematic; optional.")
-    rail_input_v = number("Input rail", help_text="A charge pump's input, if you measured it too.")
+    rail_load_ma = number("Load")
+    rail_expected_v = number("Expected")
+    rail_input_v = number("Input rail")
 
     prefix = "rail"
 

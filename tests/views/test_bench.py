@@ -1,6 +1,8 @@
 """The bench pages: intake, readings with messages next to their fields,
 the recap with suggested parts, release; technicians and managers only."""
 
+from html.parser import HTMLParser
+
 import pytest
 from django.urls import reverse
 
@@ -113,3 +115,92 @@ def test_release_or_keep_held_from_the_page(client, users, unit):
     assert unit.status == "available"
     history = client.get(reverse("unit_detail", args=["EC-0001"])).content.decode()
     assert "Status: On the bench → Available" in history or "status: bench → available" in history
+
+
+# --- the reading form, the unit's own safety, readings in plain words ----------------------------
+
+class _Rows(HTMLParser):
+    """Each ``div.readrow`` of a page: its inputs' names, and the text of the unit shown after each."""
+
+    def __init__(self):
+        super().__init__()
+        self.rows, self._depth, self._unit = [], 0, False
+
+    def handle_starttag(self, tag, attrs):
+        attrs = dict(attrs)
+        if self._depth:
+            self._depth += tag == "div"
+            if tag == "input" and attrs.get("type") != "hidden":
+                self.rows[-1].append([attrs["name"], ""])
+            self._unit = tag == "span" and attrs.get("class") == "unit"
+        elif tag == "div" and "readrow" in (attrs.get("class") or "").split():
+            self.rows.append([])
+            self._depth = 1
+
+    def handle_endtag(self, tag):
+        if self._depth and tag == "div":
+            self._depth -= 1
+        self._unit = False
+
+    def handle_data(self, data):
+        if self._unit and self.rows and self.rows[-1]:
+            self.rows[-1][-1][1] += data.strip()
+
+
+def test_a_capacitor_reading_is_one_row_across_with_its_units_beside_the_fields(client, users, unit):
+    """Position, ESR, its test frequency, capacitance and leakage side by side in one row, in that order in
+    the page (so Tab goes across, then down to the rail's row), each with its unit beside it."""
+    bench.bench_intake(unit_id=unit.pk)
+    client.force_login(users.technician)
+    parser = _Rows()
+    parser.feed(client.get(url("bench_unit")).content.decode())
+    capacitor, rail = parser.rows
+    assert capacitor == [["cap-designator", ""], ["cap-esr_ohm", "Ω"], ["cap-esr_freq_hz", "Hz"],
+                         ["cap-capacitance_uf", "µF"], ["cap-leakage_ua", "µA"]]
+    assert rail == [["rail-rail_name", ""], ["rail-rail_measured_v", "V"], ["rail-rail_load_ma", "mA"],
+                    ["rail-rail_expected_v", "V"], ["rail-rail_input_v", "V"]]
+
+
+def test_the_units_own_hazards_are_on_every_bench_page(client, users, unit):
+    """The model's hazard notes, its parts above 60 V and the usual cautions on intake, readings, recap and
+    release, not only on the unit page."""
+    from fleet.models import Position, UnitCapacitor
+
+    model = unit.gear_model
+    model.hazard_tube_hv = True
+    model.hazard_notes = "Invented note: the output stage's anode supply sits at about 400 V."
+    model.save()
+    Position.objects.filter(gear_model=model, designator="C1").update(rated_voltage_v=450, capacitance_uf=47)
+    UnitCapacitor.objects.filter(unit=unit, position__designator="C1").update(rated_voltage_v=450, capacitance_uf=47)
+    Unit.objects.filter(pk=unit.pk).update(status=Unit.Status.HOLD, hold_reason="Hum")
+    client.force_login(users.technician)
+    pages = {"intake": client.get(url("bench_unit")).content.decode()}
+    bench.bench_intake(unit_id=unit.pk)
+    pages["readings"] = client.get(url("bench_unit")).content.decode()
+    pages["recap"] = client.get(url("bench_recap"), {"choice": "all"}).content.decode()
+    pages["release"] = client.get(url("bench_release")).content.decode()
+    for name, text in pages.items():
+        assert "Invented note: the output stage&#x27;s anode supply sits at about 400 V." in text, name
+        assert "Tube high voltage: lethal" in text, name
+        assert "1 part rated above 60 V" in text and "C1</span> 47 µF 450 V, 4.8 J" in text, name
+        for caution in ("Isolate the unit from the mains", "verify with a meter", "Local electrical codes",
+                        "licensed practice"):
+            assert caution in text, (name, caution)
+
+
+def test_rail_and_capacitance_readings_are_said_in_plain_words(client, users, unit):
+    bench.bench_intake(unit_id=unit.pk)
+    client.force_login(users.technician)
+    response = client.post(url("bench_reading"), {"rail-rail_name": "-9V", "rail-rail_measured_v": "-6.1",
+                                                  "rail-rail_load_ma": "10", "rail-rail_expected_v": "-9",
+                                                  "rail-rail_input_v": "12"},
+                           follow=True)
+    text = response.content.decode()
+    # 6.1 / 9 = 0.678: low, 68 %; a true minus sign
+    assert "Expected −9 V, measured −6.1 V under 10 mA: low, 68 % of expected" in text
+    client.post(url("bench_reading"), {"cap-designator": "C5", "cap-capacitance_uf": "38"})
+    text = client.get(url("bench_unit")).content.decode()
+    # 38 / 47 = 0.809
+    assert "Measured 38 µF against 47 µF rated: 81 % (within the 20 % end-of-life drift)" in text
+    page = client.get(reverse("unit_detail", args=["EC-0001"])).content.decode()
+    assert "measured −6.1 V under 10 mA: low, 68 % of expected" in page and "against 47 µF rated: 81 %" in page
