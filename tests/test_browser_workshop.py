@@ -23,6 +23,8 @@ from front import workflows
 from scheduling.services import forecast_refresh
 from tests.base import PASSWORD, make_user
 
+pytestmark = pytest.mark.browser
+
 CHROMIUM = shutil.which("chromium") or "/usr/bin/chromium"
 DRIVER = shutil.which("chromedriver") or "/usr/bin/chromedriver"
 ARTIFACTS = Path(__file__).resolve().parent.parent / "var" / "test-artifacts" / "browser"
@@ -214,3 +216,76 @@ def test_desk_to_bench_to_desk_in_a_real_browser(browser, server, pump_unit):
     _wait_text(browser, "checked out on job J-SHIM-2")
     _shot(browser, "7-checked-out")
     assert Unit.objects.get(pk=pump_unit.pk).status == "out"
+
+
+def _no_sideways_scroll(driver, page):
+    width, client = driver.execute_script(
+        "return [document.documentElement.scrollWidth, document.documentElement.clientWidth]")
+    assert width <= client, f"{page} scrolls sideways at {client} px: {width} px wide"
+
+
+HAZARD_NOTE = "Invented note: the pump's input comes from an external 9 V supply; never bridge it to the mains lead."
+
+
+def test_the_bench_loop_on_a_tablet(browser, server, pump_unit):
+    """Intake -> readings -> recap -> release at 768 px: no page scrolls sideways, and the unit's own
+    hazard note and the usual cautions are on every bench page."""
+    GearModel.objects.filter(pk=pump_unit.gear_model_id).update(hazard_notes=HAZARD_NOTE)
+    workflows.rental_check_in(unit_id=pump_unit.pk, venue_ambient_c=27, powered_hours=9,
+                              reported_faults="Dry signal only.")
+    assert Unit.objects.get(pk=pump_unit.pk).status == "hold"
+    base = server
+    browser.set_window_size(768, 1024)
+    _login(browser, base, "idris.tech")
+
+    def check(page):
+        body = browser.find_element("tag name", "body").text
+        assert HAZARD_NOTE in body, page
+        for caution in ("Isolate the unit from the mains", "verify with a meter", "licensed practice"):
+            assert caution in body, (page, caution)
+        _no_sideways_scroll(browser, page)
+        _shot(browser, f"tablet-{page}")
+
+    # intake
+    browser.get(base + "/bench/LF-0007/")
+    _wait_text(browser, "Take it to the bench")
+    check("intake")
+    _fill(browser, "notes", "Dry signal only.")
+    browser.find_element("xpath", "//button[normalize-space()='Take to the bench']").click()
+    _wait_text(browser, "LF-0007 is on the bench.")
+    # readings: one capacitor row, one rail row, both in plain words afterwards
+    _fill(browser, "cap-designator", "C5")
+    _fill(browser, "cap-capacitance_uf", "38")
+    browser.find_element("name", "save_capacitor").click()
+    _wait_text(browser, "Measured 38 µF against 47 µF rated: 81 %")
+    _fill(browser, "rail-rail_name", "-5V")
+    _fill(browser, "rail-rail_measured_v", "-3.4")
+    _fill(browser, "rail-rail_load_ma", "20")
+    _fill(browser, "rail-rail_expected_v", "-4.5")
+    browser.find_element("name", "save_rail").click()
+    _wait_text(browser, "Expected −4.5 V, measured −3.4 V under 20 mA: low, 76 % of expected")
+    check("readings")
+    # the capacitor row's fields sit side by side at this width
+    tops = {name: browser.find_element("name", name).rect["y"]
+            for name in ("cap-designator", "cap-esr_ohm", "cap-esr_freq_hz", "cap-capacitance_uf")}
+    assert len(set(tops.values())) == 1, tops
+    # recap the pump pair
+    browser.get(base + "/bench/LF-0007/recap/?choice=pick&pick=C4&pick=C5")
+    _wait_text(browser, "The new parts")
+    check("recap")
+    browser.find_element("name", "signed_off").click()
+    browser.find_element("name", "record_recap").click()
+    _wait_text(browser, "Recap recorded and signed off: C4, C5 replaced")
+    # release
+    browser.find_element("link text", "Release or keep held…").click()
+    _wait_text(browser, "Release it to available")
+    check("release")
+    browser.find_element("name", "decide").click()
+    _wait_text(browser, "is released: the desk may hire it out")
+    _no_sideways_scroll(browser, "unit page")
+    _shot(browser, "tablet-unit-page")
+    browser.get(base + "/workshop/")
+    _wait_text(browser, "Workshop")
+    _no_sideways_scroll(browser, "workshop")
+    _shot(browser, "tablet-workshop")
+    assert Unit.objects.get(pk=pump_unit.pk).status == "available"
