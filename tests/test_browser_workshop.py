@@ -224,7 +224,7 @@ def _no_sideways_scroll(driver, page):
     assert width <= client, f"{page} scrolls sideways at {client} px: {width} px wide"
 
 
-HAZARD_NOTE = "Invented note: the pump's input comes from an external 9 V supply; never bridge it to the mains lead."
+HAZARD_NOTE = "Invented note: the transformer primary is live whenever the lead is in, even with the front switch off."
 
 
 def test_the_bench_loop_on_a_tablet(browser, server, pump_unit):
@@ -267,7 +267,7 @@ def test_the_bench_loop_on_a_tablet(browser, server, pump_unit):
     check("readings")
     # the capacitor row's fields sit side by side at this width
     tops = {name: browser.find_element("name", name).rect["y"]
-            for name in ("cap-designator", "cap-esr_ohm", "cap-esr_freq_hz", "cap-capacitance_uf")}
+            for name in ("cap-designator", "cap-esr_ohm", "cap-esr_freq_hz", "cap-capacitance_uf", "cap-leakage_ua")}
     assert len(set(tops.values())) == 1, tops
     # recap the pump pair
     browser.get(base + "/bench/LF-0007/recap/?choice=pick&pick=C4&pick=C5")
