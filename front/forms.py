@@ -151,7 +151,7 @@ class CheckOutForm(DeskForm):
         super().__init__(*args, **kwargs)
         self.forecast = None
         self.needs_confirmation = False
-        self.note = ""
+        self.note = self.stop = ""
         self.policy = active_policy()
         if not self.is_bound and self.initial.get("asset_tag"):
             # a tag from the scan box: say at once what the forecast says, and ask for a reason up front if needed
@@ -168,8 +168,18 @@ class CheckOutForm(DeskForm):
 
     def _weigh(self, forecast):
         self.forecast = forecast
-        self.needs_confirmation = bool(checkout_reason_needed(forecast, self.policy))
+        why = checkout_reason_needed(forecast, self.policy)
+        self.needs_confirmation = bool(why)
         self.note = checkout_forecast_note(forecast, self.policy)
+        if not why:
+            self.stop = ""
+        elif forecast.status == UnitForecast.Status.INVALID:
+            said = "; ".join(forecast.reasons or []) or "its figures are not usable"
+            self.stop = (f"Its forecast cannot be worked out: {said}. Check with the workshop; to send it out "
+                         "anyway, give the reason below.")
+        else:
+            self.stop = (f"Recap {forecast.get_status_display().lower()} and {why}: it should stay in for the "
+                         "workshop. To send it out anyway, ask the workshop and give the reason below.")
 
     def clean_out_at(self):
         return self.clean_moment("out_at")

@@ -247,3 +247,11 @@ def test_the_desk_card_follows_the_rule(client, users, fleet):
     UnitForecast.objects.filter(pk=forecast.pk).update(risk=0.2)
     card = client.get(f"/units/{fleet.unit.asset_tag}/").context["desk"]
     assert (card["go"], card["word"]) == (False, "Check with the workshop")
+
+
+def test_the_desk_sees_why_before_it_types_a_reason(client, users, fleet):
+    _forecast(fleet.unit, risk=0.22)
+    client.force_login(users.desk)
+    page = client.get(URL, {"tag": "NMB-0001"}).content.decode()
+    assert ("Recap overdue and its chance of a fault within 90 days is 22 %, at or above the house limit of "
+            "10 %: it should stay in for the workshop") in page
