@@ -16,6 +16,7 @@ from fleet.models import Role, Unit
 from fleet.services import ServiceError
 
 from .. import bench, selectors
+from ..workflows import checkout_reason_needed
 from ..bench_forms import CapacitorReadingForm, IntakeForm, RailReadingForm, RecapChoiceForm, RecapForm, ReleaseForm
 from .access import page, technician_required
 from .display import forecast_display, safety, unit_forecast
@@ -177,4 +178,5 @@ def bench_release(request, asset_tag):
         "unit": unit, "form": form, "visit": open_visit(unit.pk),
         "safety": safety(unit, selectors.unit_capacitors(unit)),
         "forecast": forecast_display(unit_forecast(unit)),
+        "desk_reason": checkout_reason_needed(unit_forecast(unit)),
     })

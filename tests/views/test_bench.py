@@ -204,3 +204,16 @@ def test_rail_and_capacitance_readings_are_said_in_plain_words(client, users, un
     assert "Measured 38 µF against 47 µF rated: 81 % (within the 20 % end-of-life drift)" in text
     page = client.get(reverse("unit_detail", args=["EC-0001"])).content.decode()
     assert "measured −6.1 V under 10 mA: low, 68 % of expected" in page and "against 47 µF rated: 81 %" in page
+
+
+def test_the_release_page_says_what_the_desk_will_be_asked(client, users, unit):
+    from scheduling.models import UnitForecast
+
+    bench.bench_intake(unit_id=unit.pk)
+    client.force_login(users.technician)
+    UnitForecast.objects.filter(unit=unit).update(status="overdue", risk=0.25)
+    text = client.get(url("bench_release")).content.decode()
+    assert "the desk can only check it out with a recorded reason" in text
+    UnitForecast.objects.filter(unit=unit).update(status="overdue", risk=0.02)
+    text = client.get(url("bench_release")).content.decode()
+    assert "below the house risk limit: if you release it, the desk may hire it out" in text
