@@ -12,7 +12,7 @@ from django.shortcuts import redirect
 from django.views.decorators.http import require_http_methods, require_POST
 
 from fleet.bench_services import open_visit, pump_pairs
-from fleet.models import Role, Unit
+from fleet.models import Rental, Role, Unit
 from fleet.services import ServiceError
 
 from .. import bench, selectors
@@ -60,6 +60,8 @@ def _bench_page(request, unit, *, intake=None, cap_form=None, rail_form=None, st
         "visit": open_visit(unit.pk),
         "safety": safety(unit, caps),
         "forecast": forecast_display(unit_forecast(unit)),
+        # what the desk wrote when it came back: the fault the technician is to find
+        "last_back": Rental.objects.filter(unit=unit, in_at__isnull=False).order_by("-in_at").first(),
         "intake": intake or IntakeForm(),
         "cap_form": cap_form,
         "rail_form": rail_form,

@@ -217,3 +217,21 @@ def test_the_release_page_says_what_the_desk_will_be_asked(client, users, unit):
     UnitForecast.objects.filter(unit=unit).update(status="overdue", risk=0.02)
     text = client.get(url("bench_release")).content.decode()
     assert "below the house risk limit: if you release it, the desk may hire it out" in text
+
+
+def test_the_bench_page_says_what_the_desk_reported_on_return(client, users, unit):
+    """The technician taking a held unit in sees the fault the hirer reported, not only "Held"."""
+    import datetime as dt
+
+    from django.utils import timezone
+
+    from front import workflows
+
+    out = timezone.now() - dt.timedelta(days=3)
+    workflows.rental_check_out(unit_id=unit.pk, job_ref="J-HUM-4", out_at=out, override_reason="test hire")
+    workflows.rental_check_in(unit_id=unit.pk, in_at=out + dt.timedelta(days=2), venue_ambient_c=31,
+                              powered_hours=14, reported_faults="Hum on both outputs when warm.")
+    client.force_login(users.technician)
+    text = client.get(url("bench_unit")).content.decode()
+    assert "Take it to the bench" in text and "Hum on both outputs when warm." in text
+    assert "from job J-HUM-4: 14 h powered at 31 °C" in text
