@@ -14,12 +14,14 @@ from django.views.decorators.http import require_http_methods, require_POST
 from fleet.bench_services import open_visit, pump_pairs
 from fleet.models import Rental, Role, Unit
 from fleet.services import ServiceError
+from scheduling.services import stored_positions
+from scheduling.triage import REPLACE
 
 from .. import bench, selectors
-from ..workflows import checkout_reason_needed
 from ..bench_forms import CapacitorReadingForm, IntakeForm, RailReadingForm, RecapChoiceForm, RecapForm, ReleaseForm
+from ..workflows import checkout_reason_needed
 from .access import page, technician_required
-from .display import forecast_display, safety, unit_forecast
+from .display import designator_key, forecast_display, safety, unit_forecast
 from .readings import reading_rows, reading_summary
 
 
@@ -116,6 +118,18 @@ def bench_reading(request, asset_tag):
     return _bench_page(request, unit, **({"rail_form": form} if rail else {"cap_form": form}))
 
 
+def _to_replace(unit, caps):
+    """The designators the stored forecast says to replace, in designator order."""
+    forecast = unit_forecast(unit)
+    if forecast is None:
+        return []
+    by_id = {c.pk: c.position.designator for c in caps}
+    wanted = {by_id.get(int(rec["capacitor_id"])) for rec in stored_positions(forecast)
+              if int(rec["action"]) == REPLACE}
+    return [by_id[c.pk] for c in sorted(caps, key=lambda c: designator_key(c.position.designator))
+            if by_id[c.pk] in wanted]
+
+
 @technician_required
 @require_http_methods(["GET", "POST"])
 def bench_recap(request, asset_tag):
@@ -150,6 +164,7 @@ def bench_recap(request, asset_tag):
                 return redirect("bench_unit", asset_tag=unit.asset_tag)
     return page(request, "front/bench_recap.html", {
         "unit": unit, "choice": choice, "form": form, "rows": form.bound_rows() if form else [],
+        "to_replace": _to_replace(unit, caps),
         "problem": problem, "on_bench": unit.status == Unit.Status.BENCH,
         "low_esr": {c.position.designator for c in chosen if c.position.role in (Role.PUMP_FLYING,
                                                                                  Role.PUMP_RESERVOIR)},

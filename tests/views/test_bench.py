@@ -235,3 +235,24 @@ def test_the_bench_page_says_what_the_desk_reported_on_return(client, users, uni
     text = client.get(url("bench_unit")).content.decode()
     assert "Take it to the bench" in text and "Hum on both outputs when warm." in text
     assert "from job J-HUM-4: 14 h powered at 31 °C" in text
+
+
+def test_the_recap_page_offers_the_positions_the_forecast_says_to_replace(client, users, unit):
+    import numpy as np
+
+    from scheduling.models import UnitForecast
+    from scheduling.services import POSITION_LAYOUT, stored_positions
+    from scheduling.triage import REPLACE
+
+    bench.bench_intake(unit_id=unit.pk)
+    forecast = UnitForecast.objects.get(unit=unit)
+    positions = stored_positions(forecast).copy()
+    assert len(positions) == 4
+    c4 = unit.capacitors.get(position__designator="C4").pk
+    positions["action"] = np.where(positions["capacitor_id"] == c4, REPLACE, 0)
+    forecast.positions = POSITION_LAYOUT + positions.tobytes()
+    forecast.save()
+    client.force_login(users.technician)
+    response = client.get(url("bench_recap"))
+    assert response.context["to_replace"] == ["C4"]
+    assert "?choice=pick&amp;pick=C4" in response.content.decode()
