@@ -139,3 +139,14 @@ def test_the_page_costs_the_same_queries_whatever_the_fleet(client, users, fleet
                   status=Unit.Status.HOLD if i % 3 == 0 else Unit.Status.AVAILABLE)
     forecast_refresh()
     assert (count(), count(role="supply_reservoir")) == small
+
+
+def test_a_unit_in_the_triage_list_can_be_taken_to_the_bench_from_its_row(client, users, fleet):
+    out = make_unit(fleet.gear_model, fleet.location, asset_tag="NMB-0002")
+    forecast(fleet.unit, "overdue", priority=1, reasons=["C1 worn out"])
+    forecast(out, "overdue", priority=2, reasons=["C1 worn out"])
+    Unit.objects.filter(pk=out.pk).update(status=Unit.Status.OUT)
+    client.force_login(users.technician)
+    text = client.get(reverse("workshop")).content.decode()
+    assert reverse("bench_unit", args=["NMB-0001"]) in text
+    assert reverse("bench_unit", args=["NMB-0002"]) not in text  # out on hire: nothing to take in
