@@ -191,9 +191,15 @@ def bench_release(request, asset_tag):
             else:
                 messages.success(request, f"{unit.asset_tag} is released: the desk may hire it out.")
             return redirect("unit_detail", asset_tag=unit.asset_tag)
+    visit = open_visit(unit.pk)
+    caps = selectors.unit_capacitors(unit)
     return page(request, "front/bench_release.html", {
-        "unit": unit, "form": form, "visit": open_visit(unit.pk),
-        "safety": safety(unit, selectors.unit_capacitors(unit)),
+        "unit": unit, "form": form, "visit": visit,
+        # what this visit did, and what the forecast still asks for
+        "visit_readings": visit.readings.count() if visit else 0,
+        "visit_recaps": list(visit.service_records.prefetch_related("replaced__position")) if visit else [],
+        "to_replace": _to_replace(unit, caps),
+        "safety": safety(unit, caps),
         "forecast": forecast_display(unit_forecast(unit)),
         "desk_reason": checkout_reason_needed(unit_forecast(unit)),
     })

@@ -256,3 +256,14 @@ def test_the_recap_page_offers_the_positions_the_forecast_says_to_replace(client
     response = client.get(url("bench_recap"))
     assert response.context["to_replace"] == ["C4"]
     assert "?choice=pick&amp;pick=C4" in response.content.decode()
+
+
+def test_the_release_page_says_what_this_visit_did(client, users, unit):
+    bench.bench_intake(unit_id=unit.pk)
+    client.force_login(users.technician)
+    client.post(url("bench_reading"), {"cap-designator": "C4", "cap-esr_ohm": "9", "cap-esr_freq_hz": "100"})
+    text = client.get(url("bench_release")).content.decode()
+    assert "1 reading;" in text and "no recap recorded." in text
+    bench.bench_recap(unit_id=unit.pk, replacements={"C4": {}, "C5": {}}, user=users.technician)
+    text = client.get(url("bench_release")).content.decode()
+    assert "replaced C4, C5, signed off." in text
