@@ -25,7 +25,8 @@ def test_the_loop_by_command(unit):
     out = run("record_reading", "EC-0001", "--position", "C4", "--esr-ohm", "14", "--capacitance", "8u2")
     assert "C4: ESR 14 Ω measured" in out and "damage C4" in out
     out = run("record_reading", "EC-0001", "--rail=-5V", "--volts", "-2.1", "--load-ma", "20")
-    assert "-5V rail -2.10 V" in out and "damage C4" in out and "C5" in out
+    assert "-5V rail: predicted −" in out and "measured −2.1 V under 20 mA: low" in out
+    assert "damage C4" in out and "C5" in out
     out = run("recap", "EC-0001", "--positions", "C4,C5", "--technician", "ivo.tech")
     assert "recap recorded (C4, C5), signed off by ivo.tech" in out
     assert "released" in run("release", "EC-0001")
