@@ -219,9 +219,16 @@ def test_desk_to_bench_to_desk_in_a_real_browser(browser, server, pump_unit):
 
 
 def _no_sideways_scroll(driver, page):
+    """Neither the page nor any card on it scrolls sideways (a table that only scrolls inside its card
+    is as hard to use on a tablet)."""
     width, client = driver.execute_script(
         "return [document.documentElement.scrollWidth, document.documentElement.clientWidth]")
     assert width <= client, f"{page} scrolls sideways at {client} px: {width} px wide"
+    cards = driver.execute_script(
+        "return [...document.querySelectorAll('.block, .panel, .scroll')]"
+        ".filter(b => b.scrollWidth > b.clientWidth + 1)"
+        ".map(b => ((b.querySelector('h2') || b).textContent.trim().slice(0, 40)))")
+    assert not cards, f"{page}: these cards scroll sideways at {client} px: {cards}"
 
 
 HAZARD_NOTE = "Invented note: the transformer primary is live whenever the lead is in, even with the front switch off."
