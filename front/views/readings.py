@@ -3,6 +3,7 @@
 from fleet.models import Reading
 from reports import formatting as fmt
 from scheduling import physics
+from scheduling.models import UnitForecast
 
 from .display import format_capacitance
 
@@ -120,6 +121,13 @@ def reading_rows(readings):
     return rows
 
 
+def _status(code):
+    try:
+        return UnitForecast.Status(code).label.lower()
+    except ValueError:
+        return code
+
+
 def reading_summary(outcome):
     """One line for the technician: what was read, what the forecast expected,
     how the damage and the unit's forecast moved."""
@@ -148,6 +156,6 @@ def reading_summary(outcome):
         parts.append("damage " + ", ".join(f"{d} {a:.2f} → {b:.2f}" for d, (a, b) in moved.items()))
     b, a = outcome.before, outcome.after
     if b is not None and a is not None:
-        parts.append(f"unit {b.status} → {a.status}, chance of a fault within {a.horizon_days} days "
-                     f"{b.risk:.0%} → {a.risk:.0%}")
+        parts.append(f"unit {_status(b.status)} → {_status(a.status)}, chance of a fault within "
+                     f"{a.horizon_days} days {fmt.percent(b.risk)} → {fmt.percent(a.risk)}")
     return "; ".join(parts) + "."
