@@ -55,7 +55,8 @@ def capacitance_words(measured_uf, rated_uf):
     ratio = measured_uf / rated_uf
     note = ("below 80 %: past end-of-life drift" if ratio < CAPACITANCE_END_OF_LIFE
             else "within the 20 % end-of-life drift")
-    return f"measured {fmt.capacitance(measured_uf)} against {fmt.capacitance(rated_uf)} rated: {_share(ratio)} ({note})"
+    return (f"measured {fmt.capacitance(measured_uf)} against {fmt.capacitance(rated_uf)} rated: "
+            f"{_share(ratio)} ({note})")
 
 
 def esr_words(measured_ohm, freq_hz, new_ohm):
