@@ -75,7 +75,7 @@ def leakage_words(measured_ua, limit_ua):
 
 
 def _ohm(x):
-    return f"{x:.3g} Ω"
+    return fmt.resistance(x)
 
 
 def _ratio(measured, predicted):
@@ -105,9 +105,9 @@ def reading_rows(readings):
                              "ratio": _ratio(r.capacitance_uf, r.predicted_capacitance_uf)})
             if r.leakage_ua is not None:
                 limit = physics.leakage_limit_ua(r.position.capacitance_uf, r.position.rated_voltage_v)
-                rows.append({**base, "what": f"{des} leakage", "measured": f"{r.leakage_ua:g} µA",
+                rows.append({**base, "what": f"{des} leakage", "measured": f"{fmt.plain_number(r.leakage_ua)} µA",
                              "words": leakage_words(r.leakage_ua, limit),
-                             "predicted": f"limit {limit:.3g} µA", "ratio": "over the limit"
+                             "predicted": f"limit {fmt.plain_number(limit)} µA", "ratio": "over the limit"
                              if r.leakage_ua > limit else ""})
         else:
             load = f" at {r.rail_load_ma:g} mA" if r.rail_load_ma is not None else ""
