@@ -138,14 +138,31 @@ TEMPLATES = [
 WSGI_APPLICATION = "config.wsgi.application"
 
 _default_db = f"sqlite:///{VAR_DIR / 'recap.sqlite3'}"
-try:
-    DATABASES = {
-        "default": dj_database_url.parse(
-            env_str("DATABASE_URL", _default_db), conn_max_age=env_int("DB_CONN_MAX_AGE", 0)
+
+
+def database_from_env(default_url):
+    """The default database from ``DATABASE_URL``, its connections kept.
+
+    A web or worker process keeps its connection between requests for
+    ``DB_CONN_MAX_AGE`` seconds (600; 0 closes it after every request, as
+    Django does by default) and, with ``DB_CONN_HEALTH_CHECKS`` (true), checks
+    a kept connection with a cheap query before the first use in a request, so
+    a connection the server dropped meanwhile is replaced instead of failing
+    the request.
+    """
+    max_age = env_int("DB_CONN_MAX_AGE", 600)
+    if max_age < 0:
+        raise ImproperlyConfigured(f"DB_CONN_MAX_AGE must be 0 or more seconds, not {max_age}")
+    try:
+        return dj_database_url.parse(
+            env_str("DATABASE_URL", default_url), conn_max_age=max_age,
+            conn_health_checks=env_bool("DB_CONN_HEALTH_CHECKS", True),
         )
-    }
-except ValueError as exc:
-    raise ImproperlyConfigured(f"DATABASE_URL is not a database address: {exc}") from None
+    except ValueError as exc:
+        raise ImproperlyConfigured(f"DATABASE_URL is not a database address: {exc}") from None
+
+
+DATABASES = {"default": database_from_env(_default_db)}
 if env_str("TEST_DATABASE_NAME"):
     # Two test runs against one server at once need test databases of their own.
     DATABASES["default"].setdefault("TEST", {})["NAME"] = env_str("TEST_DATABASE_NAME")
