@@ -202,19 +202,26 @@ def rental_close(*, unit_id, in_at=None, venue_ambient_c, powered_hours=None, me
     rental.venue_ambient_c = venue_ambient_c
     rental.reported_faults = reported_faults.strip()
     rental.checked_in_by = user
+    if venue_ambient_c is None:
+        raise ServiceError("Give the venue ambient temperature.")
+    rental.unit = unit  # clean() reads it: the row locked above, not a second query
     try:
-        rental.full_clean()
+        # The unit and users exist (the unit is locked, the users signed in),
+        # and the table's check constraints are the rules clean() checks in
+        # Python (and the database holds on save): no query for either.
+        rental.full_clean(exclude=["unit", "checked_out_by", "checked_in_by"], validate_constraints=False)
     except ValidationError as exc:
         raise ServiceError("; ".join(m for msgs in exc.message_dict.values() for m in msgs)) from None
-    _by(rental, user).save()
+    _by(rental, user).save(update_fields=["in_at", "powered_hours", "hours_source", "meter_reading_h",
+                                          "venue_ambient_c", "reported_faults", "checked_in_by"])
     if meter_reading_h is not None:
         unit.hour_meter_h = meter_reading_h
     unit.status = Unit.Status.HOLD if rental.reported_faults else Unit.Status.AVAILABLE
     unit.hold_reason = f"Fault reported on return: {rental.reported_faults}"[:300] if rental.reported_faults else ""
+    version = unit.records_version
     unit.records_version = F("records_version") + 1
     _by(unit, user).save(update_fields=["status", "hour_meter_h", "records_version", "hold_reason"])
-    unit.refresh_from_db(fields=["records_version"])
-    rental.unit = unit
+    unit.records_version = version + 1  # the row is locked: no one else moved it
     return rental
 
 

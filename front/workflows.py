@@ -157,13 +157,13 @@ def rental_check_in(*, unit_id, in_at=None, venue_ambient_c, powered_hours=None,
                                    powered_hours=powered_hours, meter_reading_h=meter_reading_h,
                                    reported_faults=reported_faults, user=user)
     thermal_sync(unit_ids=[unit_id], until=rental.in_at)
-    run = forecast_refresh(unit_ids=[unit_id], today=timezone.localdate(rental.in_at))
+    # Synced just above: the refresh need not look again.
+    run = forecast_refresh(unit_ids=[unit_id], today=timezone.localdate(rental.in_at), sync=False)
     if (rental.unit.status == Unit.Status.AVAILABLE and run.fleet.n_units
             and run.result.status[0] in ("due", "overdue")):
-        forecast = UnitForecast.objects.filter(unit_id=unit_id).first()
+        reasons = run.result.reasons[0]  # what the refresh just stored
         register.unit_hold(unit_id=unit_id, user=user, reason=(
-            f"The forecast says {run.result.status[0]} for a recap"
-            + (f": {forecast.reasons[0]}" if forecast is not None and forecast.reasons else ".")))
+            f"The forecast says {run.result.status[0]} for a recap" + (f": {reasons[0]}" if reasons else ".")))
         rental.unit.status = Unit.Status.HOLD
     return rental
 
@@ -219,7 +219,7 @@ def service_record_recap(*, unit_id, performed_on, replacements, technician=None
                                    signed_off_by=signed_off_by, bench_visit=bench_visit)
     thermal_sync(unit_ids=[unit_id])
     if refresh:
-        forecast_refresh(unit_ids=[unit_id])
+        forecast_refresh(unit_ids=[unit_id], sync=False)  # synced just above
     return record
 
 

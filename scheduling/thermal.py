@@ -266,7 +266,12 @@ def thermal_sync(*, unit_ids=None, until=None, advance_storage=False):
     if behind:
         _sync_units(behind, until, report)
     if stale:
-        report.repacked = thermal_repack(unit_ids=[u.pk for u in stale])
+        if all(hasattr(u, "thermal") for u in stale):
+            # Each history was read above and kept its row; the unit's version is the one to mark.
+            known = {u.pk: (u.thermal.pk, u.records_version) for u in stale}
+            report.repacked = thermal_repack(unit_ids=list(known), known=known)
+        else:
+            report.repacked = thermal_repack(unit_ids=[u.pk for u in stale])
     if advance_storage:
         report.advanced = thermal_advance_storage(unit_ids=unit_ids, until=until)
     return report
@@ -276,25 +281,38 @@ def thermal_sync(*, unit_ids=None, until=None, advance_storage=False):
 REPACK_CHUNK = 2000
 
 
-@transaction.atomic
-def thermal_repack(*, unit_ids=None):
+def thermal_repack(*, unit_ids=None, known=None):
     """Write each unit's packed fitted parts and recent hires (see
     scheduling/parts.py, recent.py) from the rows, marked with the unit's
     ``records_version``.  All units with a history when ``unit_ids`` is
     None.  Three queries per step of REPACK_CHUNK units; returns the number
-    of histories written."""
+    of histories written.  ``known``: {unit id: (history id, records_version)}
+    read by the caller in this transaction (``thermal_sync``), which spares
+    the two queries that would look them up.  No savepoint of its own: a
+    failure fails the caller's transaction."""
+    with transaction.atomic(savepoint=False):
+        return _repack(unit_ids, known)
+
+
+def _repack(unit_ids, known):
     now = timezone.now()
     since = now - dt.timedelta(days=R.KEEP_DAYS)
     complete_from = since.timestamp() / 86400.0
-    qs = ThermalHistory.objects.order_by("unit_id")
-    if unit_ids is not None:
-        qs = qs.filter(unit_id__in=list(unit_ids))
-    pks = dict(qs.values_list("unit_id", "id"))
+    if known is not None:
+        pks = {unit_id: known[unit_id][0] for unit_id in sorted(known)}
+    else:
+        qs = ThermalHistory.objects.order_by("unit_id")
+        if unit_ids is not None:
+            qs = qs.filter(unit_id__in=list(unit_ids))
+        pks = dict(qs.values_list("unit_id", "id"))
     ids = list(pks)
     done = 0
     for start in range(0, len(ids), REPACK_CHUNK):
         chunk = ids[start:start + REPACK_CHUNK]
-        versions = dict(Unit.objects.filter(pk__in=chunk).values_list("pk", "records_version"))
+        if known is not None:
+            versions = {unit_id: known[unit_id][1] for unit_id in chunk}
+        else:
+            versions = dict(Unit.objects.filter(pk__in=chunk).values_list("pk", "records_version"))
         parts = P.packs_of(P.read_rows(chunk), chunk)
         hires = defaultdict(list)
         for unit_id, out_at, in_at, powered, ambient in (
@@ -326,8 +344,10 @@ def _sync_units(units, until, report):
                                          out_at__lt=F("unit__thermal__accounted_until"))
         .values("unit_id").annotate(n=Count("id"), p=Sum("powered_hours")).order_by()
     }
-    has_closed = set(Rental.objects.filter(unit_id__in=ids, in_at__isnull=False)
-                     .values_list("unit_id", flat=True).distinct())
+    without = [unit_id for unit_id in ids if unit_id not in histories]
+    # Only a unit without a history asks whether it has closed hires.
+    has_closed = set(Rental.objects.filter(unit_id__in=without, in_at__isnull=False)
+                     .values_list("unit_id", flat=True).distinct()) if without else set()
     wanted = snapshot_days(ids)  # unit -> install dates of its replaced parts, reading dates
     have = defaultdict(set)
     for unit_id, day in HistogramSnapshot.objects.filter(unit_id__in=ids).values_list("unit_id", "taken_on"):
