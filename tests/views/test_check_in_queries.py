@@ -3,7 +3,7 @@ hottest path shows up here (`manage.py bench_desk` prints the time).
 
 Outside a test transaction, as a real request runs (``transaction=True``); the
 same count on SQLite and PostgreSQL.  A check-in of a unit the forecast lets
-go out again (38; it was 62 before the cut, 71 with a hold):
+go out again (38; 61 before the cut):
 
 - 4  the session, the user, the user's roles, the unit by its tag (the form);
 - 1  BEGIN (and COMMIT at the end: 1);
@@ -22,7 +22,7 @@ go out again (38; it was 62 before the cut, 71 with a hold):
      replaced parts or readings: its snapshots too); the forecast written;
      whether it needs a place among the fleet's priorities.
 
-A unit the forecast holds for a recap (46) adds its place among the
+A unit the forecast holds for a recap (46; 70 before) adds its place among the
 priorities (two counts, one write) and the hold (a savepoint, the unit
 locked, the unit and its history row written, the release).  The fleet's
 renumbering is queued for a worker after the commit: not the request's.

@@ -1,0 +1,67 @@
+"""manage.py bench_desk: check-ins through a real gunicorn server on this
+database (it times; nothing here reads the times)."""
+
+import io
+import json
+import re
+
+import pytest
+from django.contrib.auth import get_user_model
+from django.core.management import call_command
+from django.core.management.base import CommandError
+
+from fleet.models import Rental, Unit
+from front.management.commands import bench_desk
+from scheduling import bench_record
+from scheduling.models import UnitForecast
+from scheduling.services import forecast_refresh
+
+pytestmark = pytest.mark.django_db(transaction=True)  # the server reads what the test wrote
+
+
+@pytest.fixture
+def bench_file(tmp_path, monkeypatch):
+    path = tmp_path / "bench.json"
+    path.write_text(json.dumps({"floor_s": 1.5}))
+    monkeypatch.setattr(bench_record, "BENCH_FILE", path)
+    return path
+
+
+def test_it_checks_units_out_and_in_through_the_server_and_records_the_figures(bench_file):
+    call_command("make_fleet", units=8, positions=6, years=1, stdout=io.StringIO())
+    forecast_refresh()
+    before = {u.pk: u.status for u in Unit.objects.all()}
+    out = io.StringIO()
+    call_command("bench_desk", units=3, warmup=1, workers=1, stdout=out)
+    text = out.getvalue()
+
+    vendor = "postgres" if "postgres" in text else "sqlite"
+    figures = json.loads(bench_file.read_text())
+    assert figures["floor_s"] == 1.5  # merged, not overwritten
+    for key in (f"checkin_p50_ms_{vendor}", f"checkin_p95_ms_{vendor}", f"checkin_queries_{vendor}"):
+        assert figures[key] > 0, key
+    assert figures[f"checkin_p95_ms_{vendor}"] >= figures[f"checkin_p50_ms_{vendor}"]
+    assert re.search(r"3 timed after 1 warm-up: p50 [\d.]+ ms, p95 [\d.]+ ms, max [\d.]+ ms", text), text
+    assert re.search(rf"Queries per check-in: {figures[f'checkin_queries_{vendor}']} for the POST, \d+ for the "
+                     r"verdict page", text), text
+
+    # The server did the work: four hires through it (one warm-up, three timed) and one in this
+    # process, each checked out and back in by the desk user, each with its refreshed forecast.
+    desk = get_user_model().objects.get(username=bench_desk.USERNAME)
+    hires = Rental.objects.filter(job_ref__startswith=bench_desk.JOB_PREFIX)
+    assert hires.count() == 5
+    assert not hires.filter(in_at__isnull=True).exists()
+    assert set(hires.values_list("checked_in_by", flat=True)) == {desk.pk}
+    assert set(hires.values_list("checked_out_by", flat=True)) == {desk.pk}
+    through_server = hires.exclude(job_ref=f"{bench_desk.JOB_PREFIX}-Q")
+    assert sorted(through_server.values_list("job_ref", flat=True)) == [
+        f"{bench_desk.JOB_PREFIX}-{k:05d}" for k in range(4)]
+    for hire in hires:
+        assert UnitForecast.objects.get(unit_id=hire.unit_id).computed_at >= hire.in_at
+    # The units are left as they were found: available, none out.
+    assert {u.pk: u.status for u in Unit.objects.all()} == before
+
+
+def test_it_refuses_an_empty_database(bench_file):
+    with pytest.raises(CommandError, match="no units"):
+        call_command("bench_desk", units=2, stdout=io.StringIO())
