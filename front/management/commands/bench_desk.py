@@ -228,7 +228,7 @@ class Command(BaseCommand):
         log = open(Path(var_dir) / "gunicorn.log", "wb")
         return subprocess.Popen(
             [sys.executable, "-m", "gunicorn", "config.wsgi", "--bind", f"127.0.0.1:{port}",
-             "--workers", str(workers), "--log-level", "warning", "--timeout", "120"],
+             "--workers", str(workers), "--log-level", "warning", "--timeout", "120", "--no-control-socket"],
             cwd=settings.BASE_DIR, env=env, stdout=log, stderr=subprocess.STDOUT)
 
     def _wait(self, browser, server, var_dir):
