@@ -114,13 +114,14 @@ def _units(n):
             .values_list("unit_id", "in_at"):
         last_in[unit_id] = in_at
     tags = dict(Unit.objects.filter(pk__in=ids).values_list("pk", "asset_tag"))
-    out = []
-    for unit_id in ids:
-        start = max(d for d in (until.get(unit_id), last_in.get(unit_id), now - dt.timedelta(hours=6))
-                    if d is not None) + dt.timedelta(seconds=1)
-        start = min(start, now - dt.timedelta(seconds=2))
-        out.append((unit_id, tags[unit_id], start.replace(microsecond=0)))
-    return out
+    starts = {unit_id: max(d for d in (until.get(unit_id), last_in.get(unit_id), now - dt.timedelta(hours=6))
+                           if d is not None).replace(microsecond=0) + dt.timedelta(seconds=1) for unit_id in ids}
+    latest = max(starts.values(), default=now)
+    if latest > now - dt.timedelta(seconds=2):
+        # A run just before this one returned these units a moment ago: the
+        # hires must start after that, and the check-ins come after them.
+        time.sleep((latest - now).total_seconds() + 2)
+    return [(unit_id, tags[unit_id], starts[unit_id]) for unit_id in ids]
 
 
 class _Browser:
