@@ -226,8 +226,12 @@ def priorities_place(run):
     ids = run.fleet.unit_id.tolist()
     if not ids:
         return
-    rows = UnitForecast.objects.filter(unit_id__in=ids, priority__isnull=False).values_list("unit_id", "score",
-                                                                                            "act_by")
+    r = run.result
+    # The units that need work with the score and act-by date ``_store`` just
+    # wrote for them (a priority is stored where ``r.priority`` is set): read
+    # from the run, not back from the table.
+    rows = [(unit_id, score, act_by) for unit_id, needs, score, act_by
+            in zip(ids, r.priority.tolist(), r.score.astype(float).tolist(), _day_dates(r.act_by_day)) if needs]
     needing = UnitForecast.objects.filter(priority__isnull=False)
     for unit_id, score, act_by in rows:
         if act_by is None:
