@@ -117,6 +117,9 @@ def _units(n):
     starts = {unit_id: max(d for d in (until.get(unit_id), last_in.get(unit_id), now - dt.timedelta(hours=6))
                            if d is not None).replace(microsecond=0) + dt.timedelta(seconds=1) for unit_id in ids}
     latest = max(starts.values(), default=now)
+    if latest > now + dt.timedelta(seconds=60):
+        raise CommandError(f"A unit's history or last hire ends at {latest:%Y-%m-%d %H:%M}, in the future; "
+                           "bench_desk needs a fleet whose records end by now.")
     if latest > now - dt.timedelta(seconds=2):
         # A run just before this one returned these units a moment ago: the
         # hires must start after that, and the check-ins come after them.
