@@ -22,7 +22,11 @@ ROWS = 100_000
 #: writes capacitor rows and a thermal history, so a fifth of the size keeps
 #: the suite quick while still spanning ten batches.
 UNIT_ROWS = 20_000
-PEAK_LIMIT_BYTES = 150 * 1024 * 1024
+#: Measured 137 MiB on SQLite and 149 MiB on PostgreSQL (3 Dec 2026), since
+#: the histories the import starts also pack each unit's fitted parts; the
+#: limit sits about 15 % above the larger, far below what 20,000 rows held
+#: at once would take.
+PEAK_LIMIT_BYTES = 170 * 1024 * 1024
 
 pytestmark = [pytest.mark.slow]
 
