@@ -313,4 +313,8 @@ LOGGING = {
     "disable_existing_loggers": False,
     "handlers": {"console": {"class": "logging.StreamHandler"}},
     "root": {"handlers": ["console"], "level": env_str("LOG_LEVEL", "WARNING")},
+    # The folder broker has no host, and the queue library says so at every
+    # task queued ("No hostname was supplied"): true and harmless, so dropped.
+    "filters": {"folder_broker_host": {"()": "config.logfilters.NotFolderBrokerHost"}},
+    "loggers": {"kombu.connection": {"filters": ["folder_broker_host"]}},
 }
