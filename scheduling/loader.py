@@ -23,6 +23,7 @@ from . import recent as R
 from .models import HistogramSnapshot, ModelUse, ThermalHistory
 from .parts import CAPACITOR_ROW, as_columns, is_pack, read_rows, unpack_many
 from .thermal import location_monthly_temps
+from .sqlread import fetch_all
 
 
 
@@ -151,9 +152,7 @@ def recent_use(unit_ids, today):
 
 
 def _raw(sql, params):
-    with connection.cursor() as cursor:
-        cursor.execute(sql, params)
-        return cursor.fetchall()
+    return fetch_all(sql, params)
 
 
 def _days_from_text(values):

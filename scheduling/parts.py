@@ -19,6 +19,8 @@ from django.db import connection
 
 from fleet.models import UnitCapacitor
 
+from .sqlread import reading
+
 #: One capacitor row as packed and as read (NULL ESR or tan delta: -1).
 CAPACITOR_ROW = np.dtype([
     ("id", "<i8"), ("unit_id", "<i8"), ("position_id", "<i8"), ("capacitance_uf", "<f8"),
@@ -62,11 +64,13 @@ def read_rows(unit_ids=None, bare=False):
     the rows and returns their number (the benchmark's floor)."""
     params = [] if unit_ids is None else list(unit_ids)
     ids_sql = None if unit_ids is None else (", ".join(["%s"] * len(params)) or "NULL")
-    with connection.cursor() as cursor:
-        cursor.execute(rows_sql(ids_sql), params)
+    if bare:
+        # The floor reads as the engine used to: through Django's own cursor.
+        with connection.cursor() as cursor:
+            cursor.execute(rows_sql(ids_sql), params)
+            return sum(len(rows) for rows in iter(lambda: cursor.fetchmany(CHUNK_ROWS), []))
+    with reading(rows_sql(ids_sql), params) as cursor:
         chunks = iter(lambda: cursor.fetchmany(CHUNK_ROWS), [])
-        if bare:
-            return sum(len(rows) for rows in chunks)
         return np.fromiter(itertools.chain.from_iterable(chunks), dtype=CAPACITOR_ROW)
 
 

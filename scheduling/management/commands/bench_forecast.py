@@ -23,8 +23,9 @@ from scheduling import histogram as H
 from scheduling.batches import fleet_histories_sync, fleet_refresh
 from scheduling.bench_record import record
 from scheduling.models import ThermalHistory
-from scheduling.parts import read_rows
+from scheduling.parts import CHUNK_ROWS, read_rows, rows_sql
 from scheduling.services import forecast_refresh
+from scheduling.sqlread import reading
 
 RATIO_BUDGET = 1.0
 NAIVE_BUDGET = 50.0
@@ -129,6 +130,15 @@ class Command(BaseCommand):
         w(f"capacitor rows      {n_rows}")
         w(f"floor               {statistics.median(floor):8.3f} s   median (best {min(floor):.3f}): bare SQL read of "
           f"today's capacitor rows, fetched, nothing done")
+        if connection.vendor == "postgresql":
+            binary = []
+            for _ in range(options["repeat"]):
+                t0 = time.perf_counter()
+                with reading(rows_sql(), []) as cursor:
+                    sum(len(rows) for rows in iter(lambda: cursor.fetchmany(CHUNK_ROWS), []))
+                binary.append(time.perf_counter() - t0)
+            w(f"  in binary format {statistics.median(binary):8.3f} s   median: the same rows in psycopg's binary "
+              f"format (the engine's own reads use it; the budget is set against the floor above)")
         w(f"full recompute      {statistics.median(full):8.3f} s   median (best {min(full):.3f}): one pass, load, "
           f"compute, store")
         w(f"  of which          load {best['load']:.3f} s, compute {best['compute']:.3f} s, store {best['store']:.3f} s "
