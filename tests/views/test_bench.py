@@ -241,7 +241,7 @@ def test_the_recap_page_offers_the_positions_the_forecast_says_to_replace(client
     import numpy as np
 
     from scheduling.models import UnitForecast
-    from scheduling.services import POSITION_LAYOUT, stored_positions
+    from scheduling.services import pack_positions, stored_positions
     from scheduling.triage import REPLACE
 
     bench.bench_intake(unit_id=unit.pk)
@@ -250,7 +250,7 @@ def test_the_recap_page_offers_the_positions_the_forecast_says_to_replace(client
     assert len(positions) == 4
     c4 = unit.capacitors.get(position__designator="C4").pk
     positions["action"] = np.where(positions["capacitor_id"] == c4, REPLACE, 0)
-    forecast.positions = POSITION_LAYOUT + positions.tobytes()
+    forecast.positions = pack_positions(positions)
     forecast.save()
     client.force_login(users.technician)
     response = client.get(url("bench_recap"))

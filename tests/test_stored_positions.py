@@ -1,0 +1,71 @@
+"""The per-position results kept with each stored forecast: compressed with
+LZ4, read back exactly; the older uncompressed layout still reads; a damaged
+blob reads as empty instead of failing the page that shows it."""
+
+from types import SimpleNamespace
+
+import lz4.block
+import numpy as np
+import pytest
+from django.db import connection
+from django.test.utils import CaptureQueriesContext
+
+from scheduling.services import (OLD_POSITION_LAYOUT, POSITION_DTYPE, POSITION_LAYOUT, pack_positions,
+                                 stored_positions)
+from scheduling.sqlread import fetch_all
+
+
+def _records(n, seed=7):
+    rng = np.random.default_rng(seed)
+    rec = np.zeros(n, dtype=POSITION_DTYPE)
+    rec["capacitor_id"] = rng.integers(1, 2**40, n)
+    for name in ("damage", "esr_ohm", "capacitance_f", "threshold", "reaches_day", "rate_per_day", "rate_factor"):
+        rec[name] = rng.random(n).astype(np.float32)
+    rec["measured_day"] = np.where(rng.random(n) < 0.5, np.nan, 20000.0)
+    rec["action"], rec["why"] = rng.integers(0, 3, n), rng.integers(0, 6, n)
+    return rec
+
+
+@pytest.mark.parametrize("n", [0, 1, 50, 400])
+def test_positions_come_back_exactly_as_stored(n):
+    rec = _records(n)
+    blob = pack_positions(rec)
+    assert blob.startswith(POSITION_LAYOUT)
+    back = stored_positions(SimpleNamespace(positions=blob))
+    assert back.dtype == POSITION_DTYPE and len(back) == n
+    # byte for byte, NaNs included
+    assert back.tobytes() == rec.tobytes()
+
+
+def test_the_older_uncompressed_layout_still_reads():
+    rec = _records(12)
+    back = stored_positions(SimpleNamespace(positions=OLD_POSITION_LAYOUT + rec.tobytes()))
+    assert back.tobytes() == rec.tobytes()
+
+
+@pytest.mark.parametrize("blob", [
+    b"", None, b"XX99" + b"\x00" * 42,                      # empty, missing, another layout
+    POSITION_LAYOUT + b"\xff\xff\xff\x7f garbage",           # a size no block can have
+    POSITION_LAYOUT + lz4.block.compress(b"\x01" * 41),      # a whole number of records it is not
+    OLD_POSITION_LAYOUT + b"\x00" * 41,
+])
+def test_a_damaged_or_foreign_blob_reads_as_no_positions(blob):
+    assert len(stored_positions(SimpleNamespace(positions=blob))) == 0
+
+
+@pytest.mark.django_db
+def test_engine_reads_are_counted_and_bring_bytes_on_every_database():
+    from fleet.models import Unit  # noqa: F401 - the tables exist
+    from scheduling.models import ThermalHistory
+
+    qn = connection.ops.quote_name
+    with CaptureQueriesContext(connection) as ctx:
+        rows = fetch_all(f"SELECT {qn('unit_id')}, {qn('powered')} FROM {qn(ThermalHistory._meta.db_table)} "
+                         f"WHERE {qn('unit_id')} IN (%s, %s)", [1, 2])
+    assert rows == []
+    assert len(ctx.captured_queries) == 1
+    with CaptureQueriesContext(connection) as ctx:
+        (value,) = fetch_all("SELECT CAST(%s AS " + ("BYTEA" if connection.vendor == "postgresql" else "BLOB") + ")",
+                             [b"\x00\x01\xfe"])[0]
+    assert bytes(value) == b"\x00\x01\xfe"
+    assert len(ctx.captured_queries) == 1
