@@ -143,6 +143,37 @@ def test_reading_twice_the_predicted_esr_adds_exactly_one_to_the_damage(unit, te
     assert run.result.readings.rate_factor[i] == pytest.approx(physics.rate_factor(after, before, 0.29), rel=1e-3)
 
 
+def test_a_reading_that_confirms_the_predicted_wear_says_why_the_chance_of_a_fault_rose(unit, tech):
+    from front.views.readings import reading_summary
+
+    on_bench(unit, tech)
+    p = predicted(unit, "C4")
+    plain_before = forecast_compute(unit_ids=[unit.pk], frailty_sigma=0.0).result.risk[0]
+    out = bench.bench_reading_record(unit_id=unit.pk, designator="C4", esr_ohm=p["esr_ohm"], user=tech)
+    before, after = out.moved()["C4"]
+    assert after == pytest.approx(before, rel=1e-5)  # the reading is the prediction
+    assert out.after.risk - out.before.risk >= 0.05  # and still the chance rose (C4 is far past its limit)
+    # The rise is the frailty's allowance going: without a frailty spread nothing moves.
+    plain_after = forecast_compute(unit_ids=[unit.pk], frailty_sigma=0.0).result.risk[0]
+    assert plain_after == pytest.approx(plain_before, rel=1e-6)  # the reading is stored to six digits
+    words = reading_summary(out)
+    assert "Why the chance rose: until now the forecast allowed that C4, still working, had aged slower" in words
+
+
+def test_a_reading_that_finds_more_wear_or_moves_nothing_needs_no_explaining(unit, tech):
+    from front.views.readings import reading_summary
+
+    on_bench(unit, tech)
+    p = predicted(unit, "C4")
+    worse = bench.bench_reading_record(unit_id=unit.pk, designator="C4", esr_ohm=2 * p["esr_ohm"], user=tech)
+    assert worse.after.risk > worse.before.risk
+    assert "Why the chance rose" not in reading_summary(worse)
+    q = predicted(unit, "C2")
+    same = bench.bench_reading_record(unit_id=unit.pk, designator="C2", esr_ohm=q["esr_ohm"], user=tech)
+    assert abs(same.after.risk - same.before.risk) < 0.05
+    assert "Why the chance rose" not in reading_summary(same)
+
+
 def test_esr_and_capacitance_of_one_reading_combine_by_inverse_variance(unit, tech):
     on_bench(unit, tech)
     out = bench.bench_reading_record(unit_id=unit.pk, designator="C2", esr_ohm=9.0, capacitance_uf=3.9, user=tech)

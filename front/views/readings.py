@@ -159,4 +159,27 @@ def reading_summary(outcome):
     if b is not None and a is not None:
         parts.append(f"unit {_status(b.status)} → {_status(a.status)}, chance of a fault within "
                      f"{a.horizon_days} days {fmt.percent(b.risk)} → {fmt.percent(a.risk)}")
-    return "; ".join(parts) + "."
+    return "; ".join(parts) + "." + _why_risk_rose(moved, b, a)
+
+
+#: A rise of the unit's chance of a fault by at least this much (absolute)
+#: after a reading that found no more wear than predicted gets a sentence
+#: saying why; a reading within this share of the predicted damage counts as
+#: "as predicted".  Our choice.
+EXPLAIN_RISE_AT_LEAST = 0.05
+AS_PREDICTED_WITHIN = 0.10
+
+
+def _why_risk_rose(moved, before, after):
+    """A sentence for a reading that confirmed (or bettered) the predicted
+    wear and still raised the unit's chance of a fault: before it the
+    forecast allowed that the unit, still working, aged slower than predicted
+    (the frailty conditioned on survival); a measured part's wear is known,
+    so that allowance no longer covers it (scheduling/readings.py)."""
+    if not moved or before is None or after is None or after.risk - before.risk < EXPLAIN_RISE_AT_LEAST:
+        return ""
+    if any(a > b * (1 + AS_PREDICTED_WITHIN) for b, a in moved.values()):
+        return ""  # the reading found more wear than predicted: the rise explains itself
+    names = " and ".join(moved)
+    return (f" Why the chance rose: until now the forecast allowed that {names}, still working, had aged slower "
+            f"than predicted; the reading shows the predicted wear, so that allowance is gone.")
