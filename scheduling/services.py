@@ -16,7 +16,6 @@ import time
 import lz4.block
 import numpy as np
 from django.db import DEFAULT_DB_ALIAS, connection, connections, transaction
-from django.db.models import Q
 from django.utils import timezone
 
 from fleet.models import Unit
@@ -227,10 +226,11 @@ PLACE_AT_MOST = 20
 def priorities_place(run):
     """Give each unit of a refresh of a few units that needs work its place
     among the fleet's priorities now (1 + the units that need work ranked
-    before it, by the order of ``priorities_rank``: one counting query per
-    unit), and queue ``scheduling.rank_priorities`` to renumber the rest
-    once the transaction commits.  Until that job runs, two units may share a
-    number; the order they are listed in is right at once."""
+    before it, by the order of ``priorities_rank``: one statement per unit,
+    the count inside the write), and queue ``scheduling.rank_priorities`` to
+    renumber the rest once the transaction commits.  Until that job runs,
+    two units may share a number; the order they are listed in is right at
+    once."""
     ids = run.fleet.unit_id.tolist()
     if not ids:
         return
@@ -240,16 +240,25 @@ def priorities_place(run):
     # from the run, not back from the table.
     rows = [(unit_id, score, act_by) for unit_id, needs, score, act_by
             in zip(ids, r.priority.tolist(), r.score.astype(float).tolist(), _day_dates(r.act_by_day)) if needs]
-    needing = UnitForecast.objects.filter(priority__isnull=False)
-    for unit_id, score, act_by in rows:
-        if act_by is None:
-            tied = Q(act_by__isnull=False) | Q(unit_id__lt=unit_id)
-        else:
-            tied = Q(act_by__lt=act_by) | Q(act_by=act_by, unit_id__lt=unit_id)
-        # two counts, the first a range of the partial index on score alone
-        place = (needing.filter(score__gt=score).count()
-                 + needing.filter(tied, score=score).exclude(unit_id=unit_id).count() + 1)
-        UnitForecast.objects.filter(unit_id=unit_id).update(priority=place)
+    qn = connection.ops.quote_name
+    t = qn(UnitForecast._meta.db_table)
+    unit, score_, act = (f"o.{qn(c)}" for c in ("unit_id", "score", "act_by"))
+    with connection.cursor() as cursor:
+        for unit_id, score, act_by in rows:
+            # Ranked before it: a higher score, or the same score and (an
+            # act-by date earlier than its own, none last; then a lower unit
+            # id).  One range of the partial index on score (score >= its own).
+            if act_by is None:
+                tied, tied_params = f"({act} IS NOT NULL OR {unit} < %s)", [unit_id]
+            else:
+                tied = f"({act} < %s OR ({act} = %s AND {unit} < %s))"
+                day = connection.ops.adapt_datefield_value(act_by)
+                tied_params = [day, day, unit_id]
+            cursor.execute(
+                f"UPDATE {t} SET {qn('priority')} = 1 + (SELECT COUNT(*) FROM {t} AS o "
+                f"WHERE o.{qn('priority')} IS NOT NULL AND {score_} >= %s "
+                f"AND ({score_} > %s OR ({score_} = %s AND {tied} AND {unit} <> %s))) WHERE {qn('unit_id')} = %s",
+                [score, score, score, *tied_params, unit_id, unit_id])
     transaction.on_commit(_queue_ranking)
 
 

@@ -155,3 +155,31 @@ def test_a_unit_refreshed_alone_takes_its_place_at_once(small_fleet):
     forecast_refresh(unit_ids=[last.unit_id], sync=False)
     place = UnitForecast.objects.get(unit_id=last.unit_id).priority
     assert place == _ranked_in_python()[last.unit_id] == last.priority - 3
+
+
+def test_a_unit_refreshed_alone_takes_its_place_among_units_of_the_same_score(small_fleet):
+    """Ties on score: an earlier act-by date first (none last), then the lower
+    unit id; the place the unit is given at once is the full ranking's."""
+    batches.fleet_refresh(batch_units=7)
+    needing = UnitForecast.objects.filter(priority__isnull=False)
+    ids = list(needing.order_by("unit_id").values_list("unit_id", flat=True))
+    assert len(ids) >= 8
+    dated = list(needing.filter(act_by__isnull=False).order_by("unit_id").values_list("unit_id", flat=True))
+    assert len(dated) >= 2
+    # Units with an act-by date of their own (the fleet's all have one), in the middle of the ids.
+    for unit in (dated[len(dated) // 2], dated[len(dated) // 2 + 1]):
+        # Its score as a refresh of it alone writes it (the fleet's may differ in the last bits).
+        forecast_refresh(unit_ids=[unit], sync=False)
+        mine = UnitForecast.objects.get(unit_id=unit)
+        day = mine.act_by or timezone.localdate()
+        others = [u for u in ids if u != unit]
+        # Same score as the unit: some with its act-by date, some earlier, some later, some with none.
+        UnitForecast.objects.filter(unit_id__in=others).update(score=mine.score)
+        for k, u in enumerate(others):
+            when = (day, day - dt.timedelta(days=3), None, day - dt.timedelta(days=5), day + dt.timedelta(days=3))[k % 5]
+            UnitForecast.objects.filter(unit_id=u).update(act_by=when)
+        forecast_refresh(unit_ids=[unit], sync=False)  # writes its own score and act-by date again
+        got = UnitForecast.objects.get(unit_id=unit)
+        assert (got.score, got.act_by) == (mine.score, mine.act_by)
+        assert 1 < got.priority < len(ids) and got.priority == _ranked_in_python()[unit]
+

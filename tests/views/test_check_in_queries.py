@@ -23,8 +23,8 @@ go out again (37; 61 before the cut):
      (whether it needs a place among the fleet's priorities is read from
      the run, not back from the table).
 
-A unit the forecast holds for a recap (45; 70 before) adds its place among the
-priorities (two counts, one write) and the hold (a savepoint, the unit
+A unit the forecast holds for a recap (43; 70 before) adds its place among the
+priorities (one write with the count inside) and the hold (a savepoint, the unit
 locked, the unit and its history row written, the release).  The fleet's
 renumbering is queued for a worker after the commit: not the request's.
 The verdict page after the redirect (5): the session, the user, the roles,
@@ -49,7 +49,7 @@ pytestmark = pytest.mark.django_db(transaction=True)
 
 #: Ceilings (see the module's docstring for what they are).
 MAY_GO_OUT = 37
-HELD_BY_FORECAST = 45
+HELD_BY_FORECAST = 43
 VERDICT_PAGE = 5
 
 
