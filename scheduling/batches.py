@@ -31,7 +31,8 @@ from fleet.models import GearModel, Unit
 from .forecast import model_use_sums
 from .loader import history_rows, unit_rows, use_arrays
 from .models import UnitForecast
-from .services import _options_from, _store, _store_unforecastable, forecast_compute, model_use_store, priorities_rank
+from .services import (_options_from, _store, _store_unforecastable, forecast_compute, forecast_tables_vacuum,
+                       model_use_store, priorities_rank)
 from .thermal import thermal_sync
 
 log = logging.getLogger("scheduling.services")  # one logger for every forecast
@@ -153,10 +154,14 @@ def _engine_only(options):
 
 
 def fleet_finish():
-    """After the batches: drop retired units' results, number the priorities."""
+    """After the batches: drop retired units' results, number the priorities;
+    then, on PostgreSQL and outside a transaction, vacuum the tables the
+    refresh rewrote (``services.forecast_tables_vacuum``)."""
     with transaction.atomic():
         UnitForecast.objects.filter(unit__status=Unit.Status.RETIRED).delete()
-        return priorities_rank()
+        changed = priorities_rank()
+    forecast_tables_vacuum()
+    return changed
 
 
 def fleet_histories_sync(*, now=None, progress=None, chunk=NIGHTLY_CHUNK):

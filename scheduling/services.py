@@ -25,7 +25,7 @@ from .days import day_to_date
 from .forecast import EngineOptions, Policy
 from .loader import active_policy, load_fleet
 from .forecast import model_use_means, model_use_sums
-from .models import ModelUse, UnitForecast
+from .models import ModelUse, ThermalHistory, UnitForecast
 from .thermal import thermal_sync
 from .thresholds import ROLE_NAMES
 from .triage import ACTION_NAMES, LEAVE
@@ -260,6 +260,23 @@ def priorities_place(run):
                 f"AND ({score_} > %s OR ({score_} = %s AND {tied} AND {unit} <> %s))) WHERE {qn('unit_id')} = %s",
                 [score, score, score, *tied_params, unit_id, unit_id])
     transaction.on_commit(_queue_ranking)
+
+
+def forecast_tables_vacuum():
+    """After a refresh of the whole fleet on PostgreSQL: ``VACUUM (ANALYZE)``
+    the forecast table and the thermal histories.  The refresh wrote a new
+    version of every row of both; a server without autovacuum would keep
+    the old ones for ever, and the desk's check-in (its place among the
+    priorities counts the units that need work) would read through them all.
+    Outside a transaction only (VACUUM cannot run in one): returns False,
+    having done nothing, inside one or on another database."""
+    if connection.vendor != "postgresql" or connection.in_atomic_block:
+        return False
+    qn = connection.ops.quote_name
+    tables = ", ".join(qn(m._meta.db_table) for m in (UnitForecast, ThermalHistory))
+    with connection.cursor() as cursor:
+        cursor.execute(f"VACUUM (ANALYZE) {tables}")
+    return True
 
 
 def _queue_ranking():
