@@ -245,20 +245,20 @@ def priorities_place(run):
     unit, score_, act = (f"o.{qn(c)}" for c in ("unit_id", "score", "act_by"))
     with connection.cursor() as cursor:
         for unit_id, score, act_by in rows:
-            # Ranked before it: a higher score, or the same score and (an
-            # act-by date earlier than its own, none last; then a lower unit
-            # id).  One range of the partial index on score (score >= its own).
+            # Ranked before it: a higher score (an index-only range of the
+            # partial index on score), or the same score and an act-by date
+            # earlier than its own (none last), then a lower unit id.
             if act_by is None:
                 tied, tied_params = f"({act} IS NOT NULL OR {unit} < %s)", [unit_id]
             else:
                 tied = f"({act} < %s OR ({act} = %s AND {unit} < %s))"
                 day = connection.ops.adapt_datefield_value(act_by)
                 tied_params = [day, day, unit_id]
+            needs = f"SELECT COUNT(*) FROM {t} AS o WHERE o.{qn('priority')} IS NOT NULL AND {score_}"
             cursor.execute(
-                f"UPDATE {t} SET {qn('priority')} = 1 + (SELECT COUNT(*) FROM {t} AS o "
-                f"WHERE o.{qn('priority')} IS NOT NULL AND {score_} >= %s "
-                f"AND ({score_} > %s OR ({score_} = %s AND {tied} AND {unit} <> %s))) WHERE {qn('unit_id')} = %s",
-                [score, score, score, *tied_params, unit_id, unit_id])
+                f"UPDATE {t} SET {qn('priority')} = 1 + ({needs} > %s) + ({needs} = %s AND {tied} AND {unit} <> %s) "
+                f"WHERE {qn('unit_id')} = %s",
+                [score, score, *tied_params, unit_id, unit_id])
     transaction.on_commit(_queue_ranking)
 
 
