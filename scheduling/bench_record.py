@@ -32,3 +32,28 @@ def record(**figures):
     tmp.write_text(json.dumps(data, indent=2, sort_keys=True) + "\n")
     tmp.replace(BENCH_FILE)
     return data
+
+
+def table_state(model):
+    """How the table of ``model`` stands on PostgreSQL, for a benchmark to
+    print beside its figures: ``(words, dead row versions)``; ``("", None)``
+    on another database.  A server without autovacuum keeps the old version
+    of every row a refresh rewrote until something vacuums the table, and
+    reads slow down with them."""
+    from django.db import connection
+
+    if connection.vendor != "postgresql":
+        return "", None
+    table = model._meta.db_table
+    with connection.cursor() as cursor:
+        cursor.execute("SELECT pg_stat_clear_snapshot()")
+        cursor.execute("SELECT n_live_tup, n_dead_tup, GREATEST(last_vacuum, last_autovacuum), "
+                       "pg_total_relation_size(relid), current_setting('autovacuum') "
+                       "FROM pg_stat_user_tables WHERE relname = %s", [table])
+        row = cursor.fetchone()
+    if row is None:
+        return "", None
+    live, dead, vacuumed, size, auto = row
+    when = "never vacuumed" if vacuumed is None else f"last vacuumed {vacuumed:%Y-%m-%d %H:%M} UTC"
+    return (f"{table}: {live:,} live rows, {dead:,} dead row versions, {size / 2**20:.0f} MB, {when}, "
+            f"autovacuum {auto}"), dead

@@ -49,7 +49,7 @@ from fleet.models import Rental, Unit
 from fleet.roles import DESK, ensure_groups
 from scheduling import bench_record
 from scheduling import services as scheduling_services
-from scheduling.models import ThermalHistory
+from scheduling.models import ThermalHistory, UnitForecast
 from scheduling.services import priorities_rank
 
 #: The budget the figures are read against [ms].
@@ -192,6 +192,9 @@ class Command(BaseCommand):
         warmup = min(warmup, max(len(timed_units) - 1, 0))
         user, password = _desk_user()
         vendor = _vendor()
+        # The forecast table as the run found it (PostgreSQL): its dead row
+        # versions slow the count that places a held unit among the priorities.
+        state, dead = bench_record.table_state(UnitForecast)
         port = _spare_port()
         with tempfile.TemporaryDirectory(prefix="bench-desk-") as var_dir:
             server = self._start(port, options["workers"], var_dir)
@@ -219,8 +222,11 @@ class Command(BaseCommand):
             f"the forecast or a fault")
         self.stdout.write(f"Queries per check-in: {queries} for the POST, {verdict_queries} for the verdict page "
                           f"(counted in this process); load average {load[0]:.2f} {load[1]:.2f} {load[2]:.2f}")
+        if state:
+            self.stdout.write(f"At the start: {state}")
         bench_record.record(**{f"checkin_p50_ms_{vendor}": p50, f"checkin_p95_ms_{vendor}": p95,
-                               f"checkin_queries_{vendor}": queries, f"checkin_load_{vendor}": round(load[0], 2)})
+                               f"checkin_queries_{vendor}": queries, f"checkin_load_{vendor}": round(load[0], 2),
+                               **({f"checkin_forecast_dead_rows_{vendor}": dead} if dead is not None else {})})
 
     def _start(self, port, workers, var_dir):
         env = {k: v for k, v in os.environ.items() if k not in ("REDIS_URL", "TEST_DATABASE_NAME")}
