@@ -232,6 +232,17 @@ def unit_hold(*, unit_id, reason="", user=None):
     unit = Unit.objects.select_for_update().filter(pk=unit_id, status=Unit.Status.AVAILABLE).first()
     if unit is None:
         return False
+    return unit_hold_locked(unit, reason=reason, user=user)
+
+
+def unit_hold_locked(unit, *, reason="", user=None):
+    """``unit_hold`` for a unit whose row the caller's transaction has locked
+    and holds as it stands (``rental_close`` returns it with the hire): the
+    row is not looked up again.  Returns True if the status changed."""
+    if not transaction.get_connection().in_atomic_block:
+        raise ServiceError("unit_hold_locked needs the caller's transaction that locked the unit.")
+    if unit.status != Unit.Status.AVAILABLE:
+        return False
     unit.status, unit.hold_reason = Unit.Status.HOLD, reason[:300]
     _by(unit, user).save(update_fields=["status", "hold_reason"])
     return True

@@ -156,15 +156,17 @@ def rental_check_in(*, unit_id, in_at=None, venue_ambient_c, powered_hours=None,
     rental = register.rental_close(unit_id=unit_id, in_at=in_at, venue_ambient_c=venue_ambient_c,
                                    powered_hours=powered_hours, meter_reading_h=meter_reading_h,
                                    reported_faults=reported_faults, user=user)
-    thermal_sync(unit_ids=[unit_id], until=rental.in_at)
+    # Only the hire closed just above changed the unit's records: the sync
+    # need not read its snapshot dates and fitted parts again.
+    thermal_sync(unit_ids=[unit_id], until=rental.in_at, hire_closed=True)
     # Synced just above: the refresh need not look again.
     run = forecast_refresh(unit_ids=[unit_id], today=timezone.localdate(rental.in_at), sync=False)
     if (rental.unit.status == Unit.Status.AVAILABLE and run.fleet.n_units
             and run.result.status[0] in ("due", "overdue")):
         reasons = run.result.reasons[0]  # what the refresh just stored
-        register.unit_hold(unit_id=unit_id, user=user, reason=(
+        # The unit row rental_close locked in this transaction: not looked up again.
+        register.unit_hold_locked(rental.unit, user=user, reason=(
             f"The forecast says {run.result.status[0]} for a recap" + (f": {reasons[0]}" if reasons else ".")))
-        rental.unit.status = Unit.Status.HOLD
     return rental
 
 
