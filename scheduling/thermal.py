@@ -236,7 +236,7 @@ def _history_fields(history, unit, powered, unpowered, accounted, last_powered, 
 
 
 @transaction.atomic
-def thermal_sync(*, unit_ids=None, until=None, advance_storage=False):
+def thermal_sync(*, unit_ids=None, until=None, advance_storage=False, hire_closed=False):
     """Bring the engine's histories up to date with the register.
 
     For every unit (of ``unit_ids``; all when None) that is not retired and
@@ -253,6 +253,14 @@ def thermal_sync(*, unit_ids=None, until=None, advance_storage=False):
     With ``advance_storage`` every history not out on hire then counts storage
     up to ``until`` (the nightly job).  Idempotent; a fixed number of queries
     whatever the number of units, plus one small one per unit changed.
+
+    ``hire_closed``: the caller's transaction changed these units' records
+    only by closing a hire each (``fleet.services.rental_close``, one step
+    of ``records_version``).  A history, or a pack of fitted parts, that was
+    current one step before then already has every snapshot its unit needs
+    and the parts it has (a hire moves neither a part nor a reading): the
+    dates of its snapshots and its capacitor rows are not read again.  Any
+    other unit is brought up to date in full.
     """
     until = until or timezone.now()
     report = SyncReport()
@@ -263,13 +271,18 @@ def thermal_sync(*, unit_ids=None, until=None, advance_storage=False):
         units = units.filter(pk__in=list(unit_ids))
     stale = list(units.select_related("gear_model", "thermal"))
     behind = [u for u in stale if not hasattr(u, "thermal") or u.thermal.records_version != u.records_version]
+    # Only a hire closed since these were current: snapshots and packed parts stand (see above).
+    snapshots_stand = {u.pk for u in behind if hire_closed and hasattr(u, "thermal")
+                       and u.thermal.records_version == u.records_version - 1}
     if behind:
-        _sync_units(behind, until, report)
+        _sync_units(behind, until, report, snapshots_stand=snapshots_stand)
     if stale:
         if all(hasattr(u, "thermal") for u in stale):
             # Each history was read above and kept its row; the unit's version is the one to mark.
             known = {u.pk: (u.thermal.pk, u.records_version) for u in stale}
-            report.repacked = thermal_repack(unit_ids=list(known), known=known)
+            parts = {u.pk: bytes(u.thermal.parts) for u in stale if hire_closed
+                     and u.thermal.parts_version == u.records_version - 1 and P.is_pack(u.thermal.parts)}
+            report.repacked = thermal_repack(unit_ids=list(known), known=known, parts=parts)
         else:
             report.repacked = thermal_repack(unit_ids=[u.pk for u in stale])
     if advance_storage:
@@ -281,20 +294,22 @@ def thermal_sync(*, unit_ids=None, until=None, advance_storage=False):
 REPACK_CHUNK = 2000
 
 
-def thermal_repack(*, unit_ids=None, known=None):
+def thermal_repack(*, unit_ids=None, known=None, parts=None):
     """Write each unit's packed fitted parts and recent hires (see
     scheduling/parts.py, recent.py) from the rows, marked with the unit's
     ``records_version``.  All units with a history when ``unit_ids`` is
     None.  Three queries per step of REPACK_CHUNK units; returns the number
     of histories written.  ``known``: {unit id: (history id, records_version)}
     read by the caller in this transaction (``thermal_sync``), which spares
-    the two queries that would look them up.  No savepoint of its own: a
-    failure fails the caller's transaction."""
+    the two queries that would look them up; ``parts``: {unit id: pack} of
+    units whose fitted parts the caller knows did not change since their
+    pack was written (their capacitor rows are not read).  No savepoint of
+    its own: a failure fails the caller's transaction."""
     with transaction.atomic(savepoint=False):
-        return _repack(unit_ids, known)
+        return _repack(unit_ids, known, parts or {})
 
 
-def _repack(unit_ids, known):
+def _repack(unit_ids, known, kept):
     now = timezone.now()
     since = now - dt.timedelta(days=R.KEEP_DAYS)
     complete_from = since.timestamp() / 86400.0
@@ -313,7 +328,9 @@ def _repack(unit_ids, known):
             versions = {unit_id: known[unit_id][1] for unit_id in chunk}
         else:
             versions = dict(Unit.objects.filter(pk__in=chunk).values_list("pk", "records_version"))
-        parts = P.packs_of(P.read_rows(chunk), chunk)
+        unread = [unit_id for unit_id in chunk if unit_id not in kept]
+        parts = {**(P.packs_of(P.read_rows(unread), unread) if unread else {}),
+                 **{unit_id: kept[unit_id] for unit_id in chunk if unit_id in kept}}
         hires = defaultdict(list)
         for unit_id, out_at, in_at, powered, ambient in (
                 Rental.objects.filter(unit_id__in=chunk, in_at__gte=since).order_by("in_at")
@@ -333,7 +350,9 @@ def _repack(unit_ids, known):
     return done
 
 
-def _sync_units(units, until, report):
+def _sync_units(units, until, report, snapshots_stand=frozenset()):
+    """``snapshots_stand``: units whose snapshots are known complete (see
+    ``thermal_sync``'s ``hire_closed``); their dates are not read."""
     ids = [u.pk for u in units]
     histories = {h.unit_id: h for h in ThermalHistory.objects.select_for_update().filter(unit_id__in=ids)}
     # The hires each history counts now: same number and powered hours as when
@@ -348,10 +367,12 @@ def _sync_units(units, until, report):
     # Only a unit without a history asks whether it has closed hires.
     has_closed = set(Rental.objects.filter(unit_id__in=without, in_at__isnull=False)
                      .values_list("unit_id", flat=True).distinct()) if without else set()
-    wanted = snapshot_days(ids)  # unit -> install dates of its replaced parts, reading dates
+    looked = [unit_id for unit_id in ids if unit_id not in snapshots_stand]
+    wanted = snapshot_days(looked) if looked else {}  # unit -> install dates of its replaced parts, reading dates
     have = defaultdict(set)
-    for unit_id, day in HistogramSnapshot.objects.filter(unit_id__in=ids).values_list("unit_id", "taken_on"):
-        have[unit_id].add(day)
+    if looked:
+        for unit_id, day in HistogramSnapshot.objects.filter(unit_id__in=looked).values_list("unit_id", "taken_on"):
+            have[unit_id].add(day)
 
     start, extend, rebuild = [], [], []
     for unit in units:
