@@ -134,7 +134,7 @@ def fleet_refresh(*, today=None, batch_units=REFRESH_BATCH_UNITS, progress=None,
         if progress:
             progress(n + bad)
     t1 = time.perf_counter()
-    fleet_finish()
+    fleet_finish(rewritten=True)
     report.seconds["rank"] = time.perf_counter() - t1
     report.seconds["total"] = time.perf_counter() - t0
     report.statuses, report.need_work = fleet_summary()
@@ -153,14 +153,17 @@ def _engine_only(options):
                                                       "weibull_shape", "frailty_sigma")}
 
 
-def fleet_finish():
-    """After the batches: drop retired units' results, number the priorities;
-    then, on PostgreSQL and outside a transaction, vacuum the tables the
-    refresh rewrote (``services.forecast_tables_vacuum``)."""
+def fleet_finish(*, rewritten=False):
+    """After the batches (and after a check-in, ``tasks.rank_priorities``):
+    drop retired units' results, number the priorities; then, on PostgreSQL
+    without autovacuum and outside a transaction, vacuum the tables the
+    refresh or the renumbering filled with old row versions
+    (``services.forecast_tables_vacuum``; ``rewritten``: this process just
+    wrote every row, vacuum whatever the statistics say yet)."""
     with transaction.atomic():
         UnitForecast.objects.filter(unit__status=Unit.Status.RETIRED).delete()
         changed = priorities_rank()
-    forecast_tables_vacuum()
+    forecast_tables_vacuum(rewritten=rewritten)
     return changed
 
 

@@ -262,21 +262,40 @@ def priorities_place(run):
     transaction.on_commit(_queue_ranking)
 
 
-def forecast_tables_vacuum():
-    """After a refresh of the whole fleet on PostgreSQL: ``VACUUM (ANALYZE)``
-    the forecast table and the thermal histories.  The refresh wrote a new
-    version of every row of both; a server without autovacuum would keep
-    the old ones for ever, and the desk's check-in (its place among the
-    priorities counts the units that need work) would read through them all.
-    Outside a transaction only (VACUUM cannot run in one): returns False,
-    having done nothing, inside one or on another database."""
+#: Vacuum a table when its dead row versions pass this share of its live
+#: rows plus ``VACUUM_BASE`` (PostgreSQL's own autovacuum defaults).
+VACUUM_SCALE = 0.2
+VACUUM_BASE = 50
+
+
+def forecast_tables_vacuum(*, rewritten=False):
+    """On PostgreSQL without autovacuum: ``VACUUM (ANALYZE)`` the forecast
+    table and the thermal histories, both when the caller has just
+    ``rewritten`` every row (a refresh of the whole fleet), else those whose
+    dead row versions pass autovacuum's own default threshold (a fifth of
+    the live rows, plus 50; the statistics lag the writes by up to a second).
+
+    A refresh of the whole fleet writes a new version of every row of both
+    tables, and each renumbering of the priorities one of every unit whose
+    number moved; a server without autovacuum keeps the old versions for
+    ever, and the desk's check-in (its place among the priorities counts the
+    units that need work) reads through them all.  Called after those writes
+    (``batches.fleet_finish``); does nothing when the server vacuums itself,
+    inside a transaction (VACUUM cannot run in one) or on another database.
+    Returns the tables vacuumed."""
     if connection.vendor != "postgresql" or connection.in_atomic_block:
-        return False
-    qn = connection.ops.quote_name
-    tables = ", ".join(qn(m._meta.db_table) for m in (UnitForecast, ThermalHistory))
+        return []
+    names = [m._meta.db_table for m in (UnitForecast, ThermalHistory)]
     with connection.cursor() as cursor:
-        cursor.execute(f"VACUUM (ANALYZE) {tables}")
-    return True
+        cursor.execute("SELECT pg_stat_clear_snapshot()")
+        cursor.execute(
+            "SELECT relname FROM pg_stat_user_tables WHERE relname = ANY(%s) "
+            "AND current_setting('autovacuum') = 'off' AND (%s OR n_dead_tup > %s * n_live_tup + %s) "
+            "ORDER BY relname", [names, bool(rewritten), VACUUM_SCALE, VACUUM_BASE])
+        due = [row[0] for row in cursor.fetchall()]
+        if due:
+            cursor.execute(f"VACUUM (ANALYZE) {', '.join(connection.ops.quote_name(t) for t in due)}")
+    return due
 
 
 def _queue_ranking():

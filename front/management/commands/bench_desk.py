@@ -14,7 +14,9 @@ budget (p95 under 50 ms at 10,000 units) is read from the figures.
 It writes real hires to this database: run it on a benchmark database
 (``make_fleet``).  The units the check-ins put on hold (the synthetic fleet's
 units are all due for a recap) are made available again at the end, and the
-fleet's priorities renumbered, so the next run finds the fleet as it was.
+fleet's priorities renumbered (and, on PostgreSQL without autovacuum, the
+forecast table vacuumed once its old row versions pass autovacuum's
+threshold, as the worker would), so the next run finds the fleet as it was.
 """
 
 import datetime as dt
@@ -50,7 +52,7 @@ from fleet.roles import DESK, ensure_groups
 from scheduling import bench_record
 from scheduling import services as scheduling_services
 from scheduling.models import ThermalHistory, UnitForecast
-from scheduling.services import priorities_rank
+from scheduling.batches import fleet_finish
 
 #: The budget the figures are read against [ms].
 P95_BUDGET_MS = 50.0
@@ -306,8 +308,11 @@ class Command(BaseCommand):
         return len(posted.captured_queries), len(shown.captured_queries)
 
     def _restore(self, unit_ids):
-        """Make the bench's units available again and renumber the priorities
-        (the server queued that to a worker this bench does not run)."""
+        """Make the bench's units available again and do what the worker
+        would have done after the check-ins (the server queued it to a worker
+        this bench does not run): renumber the priorities, and on PostgreSQL
+        without autovacuum vacuum the forecast table once the old row
+        versions pass autovacuum's threshold (``batches.fleet_finish``)."""
         Unit.objects.filter(pk__in=unit_ids, status=Unit.Status.HOLD).update(status=Unit.Status.AVAILABLE,
                                                                               hold_reason="")
-        priorities_rank()
+        fleet_finish()
