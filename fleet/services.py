@@ -154,7 +154,7 @@ def rental_open(*, unit_id, job_ref, out_at=None, expected_ambient_c=25.0, user=
     return rental
 
 
-@transaction.atomic
+@transaction.atomic(savepoint=False)
 def rental_close(*, unit_id, in_at=None, venue_ambient_c, powered_hours=None, meter_reading_h=None,
                  reported_faults="", user=None):
     """Record a unit coming back from its hire.
@@ -165,6 +165,10 @@ def rental_close(*, unit_id, in_at=None, venue_ambient_c, powered_hours=None, me
     estimate counts, and the reading is kept as its first.  Powered hours may not exceed the time out; the meter may not run
     backwards.  A unit with reported faults goes on hold for the bench, any
     other becomes available.  Marks the unit's records changed.
+
+    No savepoint of its own (two round trips fewer on the desk's check-in):
+    inside a caller's transaction a refusal fails the whole of it, as the
+    check-in workflow wants.
     """
     unit = Unit.objects.select_for_update().get(pk=unit_id)
     rental = _open_rental(unit.pk)

@@ -235,7 +235,7 @@ def _history_fields(history, unit, powered, unpowered, accounted, last_powered, 
     history.basis = exposure_basis(unit, unit.gear_model.internal_rise_k)
 
 
-@transaction.atomic
+@transaction.atomic(savepoint=False)
 def thermal_sync(*, unit_ids=None, until=None, advance_storage=False, hire_closed=False):
     """Bring the engine's histories up to date with the register.
 
@@ -261,6 +261,9 @@ def thermal_sync(*, unit_ids=None, until=None, advance_storage=False, hire_close
     and the parts it has (a hire moves neither a part nor a reading): the
     dates of its snapshots and its capacitor rows are not read again.  Any
     other unit is brought up to date in full.
+
+    No savepoint of its own: inside a caller's transaction (a check-in, a
+    recap) a failure fails the whole of it.
     """
     until = until or timezone.now()
     report = SyncReport()
