@@ -176,7 +176,8 @@ def test_a_unit_refreshed_alone_takes_its_place_among_units_of_the_same_score(sm
         # Same score as the unit: some with its act-by date, some earlier, some later, some with none.
         UnitForecast.objects.filter(unit_id__in=others).update(score=mine.score)
         for k, u in enumerate(others):
-            when = (day, day - dt.timedelta(days=3), None, day - dt.timedelta(days=5), day + dt.timedelta(days=3))[k % 5]
+            when = (day, day - dt.timedelta(days=3), None, day - dt.timedelta(days=5),
+                    day + dt.timedelta(days=3))[k % 5]
             UnitForecast.objects.filter(unit_id=u).update(act_by=when)
         forecast_refresh(unit_ids=[unit], sync=False)  # writes its own score and act-by date again
         got = UnitForecast.objects.get(unit_id=unit)
