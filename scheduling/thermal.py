@@ -277,15 +277,19 @@ def thermal_sync(*, unit_ids=None, until=None, advance_storage=False, hire_close
     # Only a hire closed since these were current: snapshots and packed parts stand (see above).
     snapshots_stand = {u.pk for u in behind if hire_closed and hasattr(u, "thermal")
                        and u.thermal.records_version == u.records_version - 1}
+    whole = all(hasattr(u, "thermal") for u in stale)
+    # A check-in's extended history is written once, with its packs (one UPDATE, not two).
+    written_with_packs = {} if hire_closed and whole else None
     if behind:
-        _sync_units(behind, until, report, snapshots_stand=snapshots_stand)
+        _sync_units(behind, until, report, snapshots_stand=snapshots_stand, defer=written_with_packs)
     if stale:
-        if all(hasattr(u, "thermal") for u in stale):
+        if whole:
             # Each history was read above and kept its row; the unit's version is the one to mark.
             known = {u.pk: (u.thermal.pk, u.records_version) for u in stale}
             parts = {u.pk: bytes(u.thermal.parts) for u in stale if hire_closed
                      and u.thermal.parts_version == u.records_version - 1 and P.is_pack(u.thermal.parts)}
-            report.repacked = thermal_repack(unit_ids=list(known), known=known, parts=parts)
+            report.repacked = thermal_repack(unit_ids=list(known), known=known, parts=parts,
+                                             histories=written_with_packs)
         else:
             report.repacked = thermal_repack(unit_ids=[u.pk for u in stale])
     if advance_storage:
@@ -297,7 +301,7 @@ def thermal_sync(*, unit_ids=None, until=None, advance_storage=False, hire_close
 REPACK_CHUNK = 2000
 
 
-def thermal_repack(*, unit_ids=None, known=None, parts=None):
+def thermal_repack(*, unit_ids=None, known=None, parts=None, histories=None):
     """Write each unit's packed fitted parts and recent hires (see
     scheduling/parts.py, recent.py) from the rows, marked with the unit's
     ``records_version``.  All units with a history when ``unit_ids`` is
@@ -306,13 +310,15 @@ def thermal_repack(*, unit_ids=None, known=None, parts=None):
     read by the caller in this transaction (``thermal_sync``), which spares
     the two queries that would look them up; ``parts``: {unit id: pack} of
     units whose fitted parts the caller knows did not change since their
-    pack was written (their capacitor rows are not read).  No savepoint of
-    its own: a failure fails the caller's transaction."""
+    pack was written (their capacitor rows are not read); ``histories``:
+    {unit id: ThermalHistory} changed by the caller and not yet saved, each
+    written whole with its packs.  No savepoint of its own: a failure fails
+    the caller's transaction."""
     with transaction.atomic(savepoint=False):
-        return _repack(unit_ids, known, parts or {})
+        return _repack(unit_ids, known, parts or {}, histories or {})
 
 
-def _repack(unit_ids, known, kept):
+def _repack(unit_ids, known, kept, changed):
     now = timezone.now()
     since = now - dt.timedelta(days=R.KEEP_DAYS)
     complete_from = since.timestamp() / 86400.0
@@ -346,16 +352,25 @@ def _repack(unit_ids, known, kept):
             packed = np.zeros(recent.shape[0], dtype=R.HIRE_ROW)
             for j, name in enumerate(R.HIRE_ROW.names):
                 packed[name] = recent[:, j]
-            rows.append(ThermalHistory(pk=pks[unit_id], unit_id=unit_id, parts=parts[unit_id],
-                                       recent=R.pack(packed, complete_from), parts_version=versions.get(unit_id, -1)))
+            packs = {"parts": parts[unit_id], "recent": R.pack(packed, complete_from),
+                     "parts_version": versions.get(unit_id, -1)}
+            history = changed.get(unit_id)
+            if history is not None:
+                for name, value in packs.items():
+                    setattr(history, name, value)
+                history.save()  # the history's own fields and its packs in one UPDATE
+            else:
+                rows.append(ThermalHistory(pk=pks[unit_id], unit_id=unit_id, **packs))
         ThermalHistory.objects.bulk_update(rows, ["parts", "recent", "parts_version"], batch_size=500)
-        done += len(rows)
+        done += len(rows) + sum(1 for unit_id in chunk if unit_id in changed)
     return done
 
 
-def _sync_units(units, until, report, snapshots_stand=frozenset()):
+def _sync_units(units, until, report, snapshots_stand=frozenset(), defer=None):
     """``snapshots_stand``: units whose snapshots are known complete (see
-    ``thermal_sync``'s ``hire_closed``); their dates are not read."""
+    ``thermal_sync``'s ``hire_closed``); their dates are not read.  ``defer``,
+    a dict: the histories extended are put there unsaved, by unit id, for
+    the caller to write with their packs."""
     ids = [u.pk for u in units]
     histories = {h.unit_id: h for h in ThermalHistory.objects.select_for_update().filter(unit_id__in=ids)}
     # The hires each history counts now: same number and powered hours as when
@@ -391,10 +406,12 @@ def _sync_units(units, until, report, snapshots_stand=frozenset()):
     if start:
         report.started = thermal_start(unit_ids=[u.pk for u in start])
     for unit in extend:
-        if not _extend(unit, histories[unit.pk]):
+        if not _extend(unit, histories[unit.pk], save=defer is None):
             rebuild.append(unit)
         else:
             report.extended += 1
+            if defer is not None:
+                defer[unit.pk] = histories[unit.pk]
     if rebuild:
         report.rebuilt = thermal_rebuild(unit_ids=[u.pk for u in rebuild], until=until)
     rebuilt = {u.pk for u in rebuild}
@@ -407,9 +424,10 @@ def _sync_units(units, until, report, snapshots_stand=frozenset()):
             report.snapshots += 1
 
 
-def _extend(unit, history):
+def _extend(unit, history, save=True):
     """Add the unit's hires closed since its history's end; False if one
-    starts before that end (the history must be rebuilt instead)."""
+    starts before that end (the history must be rebuilt instead).  With
+    ``save=False`` the history is changed but not written."""
     new = list(Rental.objects.filter(unit_id=unit.pk, in_at__isnull=False, out_at__gte=history.accounted_until)
                .order_by("out_at").only("out_at", "in_at", "powered_hours", "venue_ambient_c"))
     temps = location_monthly_temps([unit.home_location_id])[unit.home_location_id]
@@ -427,7 +445,8 @@ def _extend(unit, history):
         if rental.powered_hours > 0:
             last_powered = rental.in_at
     _history_fields(history, unit, powered, unpowered, accounted, last_powered, (n, p))
-    history.save()
+    if save:
+        history.save()
     return True
 
 
