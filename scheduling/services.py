@@ -280,7 +280,8 @@ def forecast_tables_vacuum(*, rewritten=False):
     number moved; a server without autovacuum keeps the old versions for
     ever, and the desk's check-in (its place among the priorities counts the
     units that need work) reads through them all.  Called after those writes
-    (``batches.fleet_finish``); does nothing when the server vacuums itself,
+    (``batches.fleet_finish``; the commands ``forecast`` and ``due_list``
+    after a refresh of the whole fleet); does nothing when the server vacuums itself,
     inside a transaction (VACUUM cannot run in one) or on another database.
     Returns the tables vacuumed."""
     if connection.vendor != "postgresql" or connection.in_atomic_block:

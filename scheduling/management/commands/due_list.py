@@ -7,7 +7,7 @@ from django.core.management.base import BaseCommand, CommandError
 
 from fleet.csvio.cells import guard_formula
 from fleet.models import Unit
-from scheduling.services import forecast_refresh
+from scheduling.services import forecast_refresh, forecast_tables_vacuum
 
 from ._engine_args import add_engine_arguments, engine_options
 
@@ -34,6 +34,7 @@ class Command(BaseCommand):
             run = forecast_refresh(**engine_options(options))
         except ValueError as exc:
             raise CommandError(str(exc)) from None
+        forecast_tables_vacuum(rewritten=True)  # every row rewritten: a server without autovacuum keeps the old
         days = within if within is not None else int(run.policy.horizon_days)
         limit = run.today + dt.timedelta(days=days)
         units = {u.pk: u for u in Unit.objects.select_related("gear_model", "home_location")}

@@ -5,7 +5,7 @@ import json
 from django.core.management.base import BaseCommand, CommandError
 
 from fleet.models import Unit
-from scheduling.services import forecast_refresh
+from scheduling.services import forecast_refresh, forecast_tables_vacuum
 
 from ._engine_args import add_engine_arguments, engine_options
 
@@ -32,6 +32,8 @@ class Command(BaseCommand):
             run = forecast_refresh(unit_ids=unit_ids, **engine_options(options))
         except ValueError as exc:
             raise CommandError(str(exc)) from None
+        if unit_ids is None:
+            forecast_tables_vacuum(rewritten=True)  # every row rewritten: a server without autovacuum keeps the old
         order = run.urgency_order()
         if options["json"]:
             cannot = [{"asset_tag": u.asset_tag, "status": "invalid", "reasons": u.reasons}
