@@ -181,6 +181,7 @@ class Command(BaseCommand):
         parser.add_argument("--workers", type=int, default=2, help="gunicorn worker processes (default 2).")
 
     def handle(self, *args, **options):
+        self.verbosity = options["verbosity"]
         n, warmup = options["units"], options["warmup"]
         if n < 1 or warmup < 0 or options["workers"] < 1:
             raise CommandError("--units and --workers must be at least 1, --warmup at least 0.")
@@ -305,6 +306,10 @@ class Command(BaseCommand):
             raise CommandError(f"The in-process check-in of {tag} answered {response.status_code}.")
         with CaptureQueriesContext(connection) as shown:
             client.get(response["Location"], secure=True)
+        if self.verbosity >= 2:  # -v 2: each query of the check-in, with its time
+            for name, ctx in (("POST", posted), ("verdict page", shown)):
+                for q in ctx.captured_queries:
+                    self.stdout.write(f"  {name:12s} {float(q['time']) * 1000:6.2f} ms  {q['sql'][:150]}")
         return len(posted.captured_queries), len(shown.captured_queries)
 
     def _restore(self, unit_ids):
