@@ -91,11 +91,21 @@ def pump_unit(transactional_db):
 
 
 def _wait_text(driver, text, timeout=30):
-    from selenium.common.exceptions import NoSuchElementException, StaleElementReferenceException
+    from selenium.common.exceptions import NoSuchElementException, StaleElementReferenceException, WebDriverException
     from selenium.webdriver.support.ui import WebDriverWait
 
+    def shown(d):
+        try:
+            return text in d.find_element("tag name", "body").text
+        except WebDriverException as exc:
+            # The page was replaced between finding its body and reading it
+            # (a form's answer arriving): read the new page on the next poll.
+            if "does not belong to the document" in str(exc):
+                return False
+            raise
+
     WebDriverWait(driver, timeout, ignored_exceptions=(NoSuchElementException, StaleElementReferenceException)).until(
-        lambda d: text in d.find_element("tag name", "body").text)
+        shown)
 
 
 def _shot(driver, name):
