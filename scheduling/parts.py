@@ -65,13 +65,23 @@ def read_rows(unit_ids=None, bare=False):
     params = [] if unit_ids is None else list(unit_ids)
     ids_sql = None if unit_ids is None else (", ".join(["%s"] * len(params)) or "NULL")
     if bare:
-        # The floor reads as the engine used to: through Django's own cursor.
-        with connection.cursor() as cursor:
-            cursor.execute(rows_sql(ids_sql), params)
-            return sum(len(rows) for rows in iter(lambda: cursor.fetchmany(CHUNK_ROWS), []))
+        return count_rows(rows_sql(ids_sql), params)
     with reading(rows_sql(ids_sql), params) as cursor:
         chunks = iter(lambda: cursor.fetchmany(CHUNK_ROWS), [])
         return np.fromiter(itertools.chain.from_iterable(chunks), dtype=CAPACITOR_ROW)
+
+
+def count_rows(sql, params=(), *, binary=False):
+    """Fetch every row of ``sql`` and return their number, nothing else done
+    (the benchmark's floor).  Through Django's own cursor, as the engine used
+    to read capacitor rows; ``binary=True``: through ``sqlread.reading``, as
+    the engine reads now (psycopg's binary format on PostgreSQL)."""
+    if binary:
+        with reading(sql, params) as cursor:
+            return sum(len(rows) for rows in iter(lambda: cursor.fetchmany(CHUNK_ROWS), []))
+    with connection.cursor() as cursor:
+        cursor.execute(sql, list(params))
+        return sum(len(rows) for rows in iter(lambda: cursor.fetchmany(CHUNK_ROWS), []))
 
 
 def pack(rows):

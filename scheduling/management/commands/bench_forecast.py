@@ -23,9 +23,8 @@ from scheduling import histogram as H
 from scheduling.batches import fleet_histories_sync, fleet_refresh
 from scheduling.bench_record import record, table_state
 from scheduling.models import ThermalHistory, UnitForecast
-from scheduling.parts import CHUNK_ROWS, read_rows, rows_sql
+from scheduling.parts import count_rows, read_rows, rows_sql
 from scheduling.services import forecast_refresh, forecast_tables_vacuum
-from scheduling.sqlread import reading
 
 RATIO_BUDGET = 1.0
 NAIVE_BUDGET = 50.0
@@ -134,8 +133,7 @@ class Command(BaseCommand):
             binary = []
             for _ in range(options["repeat"]):
                 t0 = time.perf_counter()
-                with reading(rows_sql(), []) as cursor:
-                    sum(len(rows) for rows in iter(lambda: cursor.fetchmany(CHUNK_ROWS), []))
+                count_rows(rows_sql(), binary=True)
                 binary.append(time.perf_counter() - t0)
             w(f"  in binary format {statistics.median(binary):8.3f} s   median: the same rows in psycopg's binary "
               f"format (the engine's own reads use it; the budget is set against the floor above)")
