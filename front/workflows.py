@@ -34,7 +34,7 @@ from reports import formatting as fmt
 from scheduling.loader import active_policy
 from scheduling.models import UnitForecast
 from scheduling.services import forecast_refresh
-from scheduling.thermal import thermal_sync
+from scheduling.thermal import thermal_check_in, thermal_sync
 
 
 @transaction.atomic
@@ -157,8 +157,9 @@ def rental_check_in(*, unit_id, in_at=None, venue_ambient_c, powered_hours=None,
                                    powered_hours=powered_hours, meter_reading_h=meter_reading_h,
                                    reported_faults=reported_faults, user=user)
     # Only the hire closed just above changed the unit's records: the sync
-    # need not read its snapshot dates and fitted parts again.
-    thermal_sync(unit_ids=[unit_id], until=rental.in_at, hire_closed=True)
+    # adds it to the history and the packed recent hires (the snapshot dates
+    # and fitted parts stand).
+    thermal_check_in(rental.unit, rental)
     # Synced just above: the refresh need not look again.
     run = forecast_refresh(unit_ids=[unit_id], today=timezone.localdate(rental.in_at), sync=False)
     if (rental.unit.status == Unit.Status.AVAILABLE and run.fleet.n_units

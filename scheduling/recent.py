@@ -33,6 +33,11 @@ def is_pack(blob):
     return blob[:len(TAG)] == TAG and len(blob) >= _HEAD and (len(blob) - _HEAD) % HIRE_ROW.itemsize == 0
 
 
+def rows_of(blob):
+    """The hires of one pack, as a HIRE_ROW array (a copy)."""
+    return np.frombuffer(bytes(blob)[_HEAD:], dtype=HIRE_ROW).copy()
+
+
 def complete_from_many(blobs):
     """The day from which each pack is complete (float days; inf: not a pack)."""
     head = struct.Struct("<d")

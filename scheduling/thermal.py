@@ -227,12 +227,13 @@ def _units(unit_ids):
     return list(Unit.objects.filter(pk__in=unit_ids).select_related("gear_model"))
 
 
-def _history_fields(history, unit, powered, unpowered, accounted, last_powered, counted):
+def _history_fields(history, unit, powered, unpowered, accounted, last_powered, counted, internal_rise_k=None):
     history.powered, history.unpowered = H.to_bytes(powered), H.to_bytes(unpowered)
     history.accounted_until, history.last_powered_at = accounted, last_powered
     history.rentals_counted, history.powered_hours_counted = counted
     history.records_version = unit.records_version
-    history.basis = exposure_basis(unit, unit.gear_model.internal_rise_k)
+    rise = unit.gear_model.internal_rise_k if internal_rise_k is None else internal_rise_k
+    history.basis = exposure_basis(unit, rise)
 
 
 @transaction.atomic(savepoint=False)
@@ -431,22 +432,75 @@ def _extend(unit, history, save=True):
     new = list(Rental.objects.filter(unit_id=unit.pk, in_at__isnull=False, out_at__gte=history.accounted_until)
                .order_by("out_at").only("out_at", "in_at", "powered_hours", "venue_ambient_c"))
     temps = location_monthly_temps([unit.home_location_id])[unit.home_location_id]
+    if not _extend_with(unit, history, new, temps, unit.gear_model.internal_rise_k):
+        return False
+    if save:
+        history.save()
+    return True
+
+
+def _extend_with(unit, history, rentals, temps, internal_rise_k):
+    """Add closed ``rentals`` (in order of check-out) to ``history`` in
+    memory, with the storage between them at the home's monthly ``temps``;
+    False, and the history untouched, if one starts before the history's end."""
     powered, unpowered = H.from_bytes(history.powered), H.from_bytes(history.unpowered)
     accounted, last_powered = history.accounted_until, history.last_powered_at
     n, p = history.rentals_counted, history.powered_hours_counted
-    for rental in new:
-        if rental.out_at < accounted:
+    for rental in rentals:
+        if rental.out_at < accounted:  # overlapping hires among the new ones
             return False
         add_storage(unpowered, accounted, rental.out_at, temps)
         add_rental(powered, unpowered, rental.elapsed_hours, rental.powered_hours, rental.venue_ambient_c,
-                   unit.gear_model.internal_rise_k)
+                   internal_rise_k)
         accounted = rental.in_at
         n, p = n + 1, p + rental.powered_hours
         if rental.powered_hours > 0:
             last_powered = rental.in_at
-    _history_fields(history, unit, powered, unpowered, accounted, last_powered, (n, p))
-    if save:
-        history.save()
+    _history_fields(history, unit, powered, unpowered, accounted, last_powered, (n, p), internal_rise_k)
+    return True
+
+
+def thermal_check_in(unit, rental):
+    """The check-in's sync of the one unit whose hire ``rental`` the caller's
+    transaction has just closed (``fleet.services.rental_close``, which
+    returns ``unit`` locked and one step of ``records_version`` on).
+
+    When the unit's history and packs were current one step before (the
+    usual case: nothing else changed while it was out) only this hire is
+    new: it is added to the history and to the packed recent hires read
+    from the row itself, and the row is written once, without its unchanged
+    packed parts: three queries.  Anything else goes the general way,
+    ``thermal_sync(hire_closed=True)``.  Either way the row ends as a full
+    sync would write it (a test holds them equal).  Returns True when the
+    short way was taken."""
+    if not transaction.get_connection().in_atomic_block:
+        raise ValueError("thermal_check_in needs the caller's transaction that closed the hire.")
+    version = unit.records_version
+    history = (ThermalHistory.objects.select_for_update(of=("self",))
+               .annotate(rise_k=F("unit__gear_model__internal_rise_k")).filter(unit_id=unit.pk).first())
+    if (history is None or not isinstance(version, int) or history.records_version != version - 1
+            or history.parts_version != version - 1 or not P.is_pack(history.parts)
+            or not R.is_pack(history.recent) or rental.in_at is None
+            or history.basis != exposure_basis(unit, history.rise_k)):
+        thermal_sync(unit_ids=[unit.pk], until=rental.in_at, hire_closed=True)
+        return False
+    temps = location_monthly_temps([unit.home_location_id])[unit.home_location_id]
+    if not _extend_with(unit, history, [rental], temps, history.rise_k):
+        thermal_sync(unit_ids=[unit.pk], until=rental.in_at, hire_closed=True)
+        return False
+    # The recent hires: those of the pack still within KEEP_DAYS, then this one
+    # (what thermal_repack reads from the hires table, without reading it).
+    complete_from = (timezone.now() - dt.timedelta(days=R.KEEP_DAYS)).timestamp() / 86400.0
+    kept = R.rows_of(history.recent)
+    added = np.array([(rental.out_at.timestamp() / 86400.0, rental.in_at.timestamp() / 86400.0,
+                       np.nan if rental.powered_hours is None else rental.powered_hours,
+                       np.nan if rental.venue_ambient_c is None else rental.venue_ambient_c)], dtype=R.HIRE_ROW)
+    hires = np.concatenate([kept[kept["in_day"] >= complete_from], added])
+    history.recent = R.pack(hires[np.argsort(hires["in_day"], kind="stable")], complete_from)
+    history.parts_version = version
+    history.save(update_fields=["powered", "unpowered", "accounted_until", "last_powered_at", "rentals_counted",
+                                "powered_hours_counted", "records_version", "basis", "recent", "parts_version",
+                                "updated_at"])
     return True
 
 

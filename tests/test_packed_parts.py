@@ -15,7 +15,7 @@ import pytest
 from django.core.management import call_command
 from django.utils import timezone
 
-from fleet.models import Rental, UnitCapacitor
+from fleet.models import Rental, Unit, UnitCapacitor
 from front import workflows
 from scheduling import parts as P
 from scheduling import recent as R
@@ -160,22 +160,22 @@ def _engine_rows(unit_id):
     return history, snapshots, forecast
 
 
-def test_a_check_in_keeps_what_a_full_sync_would_write(fleet, monkeypatch):
-    """The check-in's sync skips the snapshot dates and the capacitor rows
-    (only the hire changed the unit's records); what it stores is what the
-    full sync stores."""
+def _check_in_both_ways(monkeypatch, unit_id, out, *, hires_before=()):
+    """The engine's rows after a check-in of ``unit_id`` (out since ``out``)
+    the check-in's own way, then (that undone) with a full sync instead;
+    and whether the check-in took its short way."""
     from django.db import transaction
 
-    unit = fleet.unit
-    workflows.service_record_recap(unit_id=unit.pk, performed_on=dt.date(2025, 5, 2),
-                                   replacements={"C1": {"rated_temp_c": 105, "rated_life_h": 8000}})
-    out = timezone.now() - dt.timedelta(days=3)
-    workflows.rental_check_out(unit_id=unit.pk, job_ref="J-1", out_at=out, override_reason="test hire")
+    from scheduling import thermal
+
+    took = []
+    short_way = thermal.thermal_check_in
+    monkeypatch.setattr(workflows, "thermal_check_in", lambda unit, rental: took.append(short_way(unit, rental)))
 
     def check_in():
-        workflows.rental_check_in(unit_id=unit.pk, in_at=out + dt.timedelta(days=2), venue_ambient_c=31.0,
+        workflows.rental_check_in(unit_id=unit_id, in_at=out + dt.timedelta(days=2), venue_ambient_c=31.0,
                                   powered_hours=20.0)
-        return _engine_rows(unit.pk)
+        return _engine_rows(unit_id)
 
     class Undo(Exception):
         pass
@@ -186,12 +186,59 @@ def test_a_check_in_keeps_what_a_full_sync_would_write(fleet, monkeypatch):
             raise Undo
     except Undo:
         pass
-    full_sync = workflows.thermal_sync
-    monkeypatch.setattr(workflows, "thermal_sync", lambda **kw: full_sync(**{**kw, "hire_closed": False}))
+    # The reference: every step of the sync, nothing skipped.
+    monkeypatch.setattr(workflows, "thermal_check_in",
+                        lambda unit, rental: thermal_sync(unit_ids=[unit.pk], until=rental.in_at))
     full = check_in()
+    return short, full, took == [True]
+
+
+def test_a_check_in_keeps_what_a_full_sync_would_write(fleet, monkeypatch):
+    """The check-in's own way (the history read once, only this hire added to
+    it and to the packed recent hires, the packed parts kept) stores what
+    the full sync stores."""
+    unit = fleet.unit
+    workflows.service_record_recap(unit_id=unit.pk, performed_on=dt.date(2025, 5, 2),
+                                   replacements={"C1": {"rated_temp_c": 105, "rated_life_h": 8000}})
+    # Earlier hires in the packed recent hires, one of them older than the pack keeps.
+    for k, days_ago in enumerate((420, 200, 30)):
+        out = timezone.now() - dt.timedelta(days=days_ago)
+        workflows.rental_check_out(unit_id=unit.pk, job_ref=f"J-0{k}", out_at=out, override_reason="test hire")
+        workflows.rental_check_in(unit_id=unit.pk, in_at=out + dt.timedelta(days=1), venue_ambient_c=25.0 + k,
+                                  powered_hours=6.0 + k)
+        Unit.objects.filter(pk=unit.pk).update(status=Unit.Status.AVAILABLE, hold_reason="")  # the bench let it go
+    out = timezone.now() - dt.timedelta(days=3)
+    workflows.rental_check_out(unit_id=unit.pk, job_ref="J-1", out_at=out, override_reason="test hire")
+    short, full, short_way = _check_in_both_ways(monkeypatch, unit.pk, out)
+    assert short_way
     assert short[1] and short[0]["parts_version"] == short[0]["records_version"]
+    assert R.rows_of(ThermalHistory.objects.get(unit=unit).recent).size == 3  # the oldest hire dropped
     assert short == full
     assert _pack_matches_rows(unit.pk)
+
+
+def test_a_check_in_after_other_changes_takes_the_general_way_with_the_same_result(fleet, monkeypatch):
+    """Records changed while the unit was out (marked changed, no sync): the
+    check-in's short way does not apply; the result is still the full sync's."""
+    from fleet.services import units_mark_changed
+
+    out = timezone.now() - dt.timedelta(days=3)
+    workflows.rental_check_out(unit_id=fleet.other.pk, job_ref="J-2", out_at=out, override_reason="test hire")
+    units_mark_changed(unit_ids=[fleet.other.pk])
+    short, full, short_way = _check_in_both_ways(monkeypatch, fleet.other.pk, out)
+    assert not short_way and short == full
+
+
+def test_a_hire_entered_back_to_before_the_history_end_rebuilds_it(fleet, monkeypatch):
+    """A hire checked out before the moment the history counts up to cannot
+    be added at its end: the check-in rebuilds, as the full sync does."""
+    thermal_sync(unit_ids=[fleet.other.pk], until=timezone.now() - dt.timedelta(days=3), advance_storage=True)
+    h = ThermalHistory.objects.get(unit=fleet.other)
+    out = h.accounted_until - dt.timedelta(hours=5)
+    workflows.rental_check_out(unit_id=fleet.other.pk, job_ref="J-3", out_at=out, override_reason="test hire")
+    short, full, short_way = _check_in_both_ways(monkeypatch, fleet.other.pk, out)
+    assert not short_way and short == full
+    assert short[0]["rentals_counted"] == 1
 
 
 def test_a_check_in_after_other_changes_reads_the_parts_again(fleet):
