@@ -42,8 +42,8 @@ def test_it_checks_units_out_and_in_through_the_server_and_records_the_figures(b
         assert figures[key] > 0, key
     assert figures[f"checkin_p95_ms_{vendor}"] >= figures[f"checkin_p50_ms_{vendor}"]
     assert re.search(r"3 timed after 1 warm-up: p50 [\d.]+ ms, p95 [\d.]+ ms, max [\d.]+ ms", text), text
-    assert re.search(rf"Queries per check-in: {figures[f'checkin_queries_{vendor}']} for the POST, \d+ for the "
-                     r"verdict page", text), text
+    assert re.search(rf"Queries per check-in: {figures[f'checkin_queries_{vendor}']} for the POST with its "
+                     r"verdict, \d+ for a reload of the verdict", text), text
 
     # The server did the work: four hires through it (one warm-up, three timed) and one in this
     # process, each checked out and back in by the desk user, each with its refreshed forecast.

@@ -104,7 +104,7 @@ def check_in(request):
             except (ServiceError, ValidationError) as exc:
                 _service_error(form, exc)
             else:
-                return redirect(f"{reverse('check_in')}?returned={rental.pk}")
+                return _returned_page(request, rental)
         unit = form.unit
     else:
         initial = {}
@@ -120,8 +120,7 @@ def check_in(request):
         if returned.isdigit():
             rental = Rental.objects.select_related("unit").filter(pk=int(returned), in_at__isnull=False).first()
             if rental is not None:
-                verdict = return_verdict(rental, selectors.forecast_for(rental.unit_id))
-                verdict["rental"] = rental
+                verdict = _verdict(rental)
     if unit is not None and open_rental is None and request.method == "POST":
         open_rental = selectors.open_rental_for(unit)
     if open_rental is not None:
@@ -131,3 +130,25 @@ def check_in(request):
         "form": form, "verdict": verdict, "open_rental": open_rental,
         "meter": selectors.last_meter_reading(unit) if open_rental is not None else None,
     })
+
+
+def _verdict(rental):
+    verdict = return_verdict(rental, selectors.forecast_for(rental.unit_id))
+    verdict["rental"] = rental
+    return verdict
+
+
+def _returned_page(request, rental):
+    """The answer to a check-in: the verdict at once, in the response to the
+    POST (no redirect and second request on the desk's busiest path), above
+    an empty form for the next unit.  The verdict keeps its own address
+    (``?returned=<hire>``): sent as ``Content-Location``, and put in the
+    browser's address bar by the page, so that reloading it shows the
+    verdict again instead of sending the form twice."""
+    url = f"{reverse('check_in')}?returned={rental.pk}"
+    form = CheckInForm()
+    form.focus()
+    response = page(request, "front/check_in.html", {
+        "form": form, "verdict": _verdict(rental), "open_rental": None, "meter": None, "returned_url": url})
+    response["Content-Location"] = url
+    return response
