@@ -436,7 +436,14 @@ def forecast_refresh(*, unit_ids=None, today=None, sync=True, **options):
             missing = set(unit_ids) - set(run.fleet.unit_id.tolist()) - {u.unit_id for u in run.unforecastable}
             if missing:
                 UnitForecast.objects.filter(unit_id__in=missing).delete()
-        if unit_ids is None or len(unit_ids) > PLACE_AT_MOST:
+        if unit_ids is None:
+            # The whole fleet: triage numbered every unit that needs work in
+            # the order priorities_rank gives the stored rows, and every other
+            # row is stored without a number or removed: nothing to renumber
+            # (a test holds them equal; the count alone costs 40-70 ms at
+            # 10,000 units).
+            pass
+        elif len(unit_ids) > PLACE_AT_MOST:
             priorities_rank()
         else:
             priorities_place(run)

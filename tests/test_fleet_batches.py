@@ -113,6 +113,24 @@ def _ranked_in_python():
     return {unit_id: k + 1 for k, (unit_id, _, _) in enumerate(rows)}
 
 
+def test_a_refresh_of_the_whole_fleet_stores_the_numbers_the_renumbering_gives(small_fleet):
+    """A refresh of the whole fleet does not renumber: triage numbered the
+    units that need work in the renumbering's order, and a unit set aside or
+    retired keeps no number.  (Ties on score: ``triage``'s order is checked
+    against the renumbering's in tests/test_triage.py.)"""
+    # A number left from an earlier run on the unit that can no longer be forecast.
+    forecast_refresh()
+    UnitForecast.objects.filter(unit=small_fleet[7]).update(priority=4)
+    first = UnitForecast.objects.filter(priority__isnull=False).order_by("unit_id").first()
+    forecast_refresh()
+    stored_numbers = dict(UnitForecast.objects.filter(priority__isnull=False).values_list("unit_id", "priority"))
+    assert small_fleet[7].pk not in stored_numbers and small_fleet[20].pk not in stored_numbers
+    assert stored_numbers == _ranked_in_python()
+    assert sorted(stored_numbers.values()) == list(range(1, len(stored_numbers) + 1))
+    assert priorities_rank() == 0
+    assert first.unit_id in stored_numbers
+
+
 def test_priorities_stay_numbered_across_the_fleet_after_a_check_in(small_fleet, django_capture_on_commit_callbacks):
     batches.fleet_refresh(batch_units=7)
     before = {u: p for u, p in UnitForecast.objects.filter(priority__isnull=False).values_list("unit_id", "priority")}

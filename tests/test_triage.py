@@ -104,6 +104,25 @@ def test_work_already_due_is_to_be_done_from_today_not_in_the_past():
     assert tri.act_by_day[1] == date_to_day(dt.date(2027, 3, 1))
 
 
+def test_units_of_the_same_score_go_by_act_by_date_then_unit_as_the_stored_renumbering_does():
+    """Ties on score: the earlier act-by date first, a date counted as the day
+    stored (a fraction of a day does not count), work already due counted
+    from today; then the lower unit.  services.priorities_rank orders the
+    stored rows so (score, act-by date nulls last, unit id), and a refresh of
+    the whole fleet keeps triage's numbers without renumbering."""
+    days = [dt.date(2027, 5, 1), dt.date(2027, 3, 1), dt.date(2027, 3, 1), dt.date(1990, 1, 1), dt.date(2027, 3, 1)]
+    due = np.array([date_to_day(d) for d in days])
+    due[4] += 0.7  # later on the same day as units 1 and 2
+    n = len(days)
+    tri = T.triage(unit_index=np.arange(n), n_units=n, role_code=np.full(n, ROLE_CODES["general"]),
+                   damage=np.full(n, 0.9), threshold=np.ones(n), hire_damage=np.full(n, 0.01),
+                   installed_day=np.full(n, date_to_day(dt.date(2015, 1, 1))), is_original=np.zeros(n, dtype=bool),
+                   status=["due"] * n, due_day=due, today_day=date_to_day(TODAY),
+                   policy=Policy(calendar_age_years=40.0), weibull_shape=3.0, frailty_sigma=0.4)
+    assert len(set(tri.score.tolist())) == 1
+    assert list(tri.priority) == [5, 2, 3, 1, 4]
+
+
 def test_units_that_need_no_work_get_no_priority():
     tri = _fleet_of_two("general", "pump_flying", damage=np.array([0.1, 0.95]), status=["ok", "due"])
     assert list(tri.priority) == [0, 1]

@@ -306,7 +306,8 @@ def test_failure_probability_median_at_threshold():
         assert_allclose(ph.failure_probability(d_star, d_star, beta), 0.5, rtol=1e-14)
 
 
-@pytest.mark.parametrize("beta", [1.5, 3.0, 5.0])
+# Whole shapes of 1-4 are raised by multiplication, the others by pow: both checked.
+@pytest.mark.parametrize("beta", [1.0, 1.5, 2.0, 3.0, 4.0, 5.0])
 def test_failure_probability_is_scipy_weibull_min(beta):
     d = np.linspace(0.0, 3.0, 31)
     d_star = 1.2
