@@ -1,7 +1,9 @@
 """The per-position results kept with each stored forecast: compressed with
 LZ4, read back exactly; the older uncompressed layout still reads; a damaged
-blob reads as empty instead of failing the page that shows it."""
+blob reads as empty instead of failing the page that shows it.  Also the
+reasons' JSON text the store writes beside them."""
 
+import json
 from types import SimpleNamespace
 
 import lz4.block
@@ -10,8 +12,8 @@ import pytest
 from django.db import connection
 from django.test.utils import CaptureQueriesContext
 
-from scheduling.services import (OLD_POSITION_LAYOUT, POSITION_DTYPE, POSITION_LAYOUT, pack_positions,
-                                 stored_positions)
+from scheduling.services import (OLD_POSITION_LAYOUT, POSITION_DTYPE, POSITION_LAYOUT, _json_words,
+                                 pack_positions, stored_positions)
 from scheduling.sqlread import fetch_all
 
 
@@ -69,3 +71,15 @@ def test_engine_reads_are_counted_and_bring_bytes_on_every_database():
                              [b"\x00\x01\xfe"])[0]
     assert bytes(value) == b"\x00\x01\xfe"
     assert len(ctx.captured_queries) == 1
+
+
+@pytest.mark.parametrize("words", [
+    [], ["one"], ["C12 signal coupling: bass roll-off would rise above 40 Hz by Mar 2027", "two"],
+    ['quote " and backslash \\ and tab \t', "non-ASCII: 25 \u00b0C, \u00b5F, \u2264 10 %", "\U0001f50c plug", ""],
+])
+def test_the_reasons_are_written_as_json_writes_them(words):
+    """The store writes each unit's reasons with its own JSON writer (no
+    encoder made per unit); the text is exactly the standard library's, so
+    both databases read back the same list."""
+    text = _json_words(words)
+    assert text == json.dumps(words) and json.loads(text) == words
