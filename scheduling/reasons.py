@@ -59,33 +59,72 @@ def _pct(p):
     return "under 1 %" if 0 < p < 0.005 else f"{p * 100:.0f} %"
 
 
-def _months(days):
-    """``Apr 2027`` for each of ``days`` (float days since 1970-01-01; NaN and
-    infinities give ``''``)."""
-    days = np.asarray(days, dtype=float)
-    ok = np.isfinite(days)
-    index = np.floor(np.where(ok, days, 0.0)).astype("int64").astype("datetime64[D]").astype("datetime64[M]")
-    index = index.astype("int64").reshape(-1).tolist()
-    return [_month_of(i) if good else "" for i, good in zip(index, ok.reshape(-1).tolist())]
+def _each_distinct(codes, make):
+    """``make(i)`` for every row ``i`` of ``codes`` (a 1-d integer array), as an
+    object array: called once per distinct code, with the first row having it."""
+    _, first, inverse = np.unique(codes, return_index=True, return_inverse=True)
+    return np.array([make(i) for i in first.tolist()], dtype=object)[inverse]
 
 
-def _position_name(fa, cache, pos):
+def _month_index(days):
+    """Months from January 1970 of each of ``days`` (finite float days)."""
+    return np.floor(days).astype("int64").astype("datetime64[D]").astype("datetime64[M]").astype("int64")
+
+
+def _when_codes(days, today_day):
+    """A code for each of ``days`` (finite), the same for two days exactly when
+    ``_when`` gives them the same words: a past day long ago by its year, any
+    other past day by its month, a day to come by its month."""
+    month = _month_index(days)
+    long_ago = today_day - days > YEAR_ONLY_AFTER_DAYS
+    month = np.where(long_ago, month - month % 12, month)
+    kind = np.where(long_ago, 0, np.where(days < today_day, 1, 2))
+    return month * 3 + kind
+
+
+def _position_name(fa, pos):
     """``C12 (supply reservoir)`` for position ``pos``."""
-    if pos not in cache:
-        cache[pos] = f"{fa.pos_designator[pos]} ({ROLE_WORDS[ROLE_NAMES[int(fa.pos_role[pos])]]})"
-    return cache[pos]
+    return f"{fa.pos_designator[pos]} ({ROLE_WORDS[ROLE_NAMES[int(fa.pos_role[pos])]]})"
 
 
-def _position_reason(fa, cache, pos, past, month, reach_day, today_day, damage, threshold):
-    """Words for a capacitor at position ``pos``.  The wording is kept in
-    ``cache`` (one per forecast run) per (position, when, crossed?), since
-    the units of one gear model share their positions' words."""
-    when = _since(reach_day, today_day) if past else month
-    key = (pos, when, threshold <= 0)
-    text = cache.get(key)
-    if text is None:
-        text = cache[key] = _position_reason_template(fa, pos, reach_day, today_day, threshold <= 0)
-    return text
+def _risk_words(fa, policy, today_day, risk, risk_day, driver_pos):
+    """The risk sentence of each unit (a row of the arguments) that gives one."""
+    horizon, limit = f"{policy.horizon_days:g}", _pct(policy.risk_limit)
+    head = f"If it works today, chance of a fault within {horizon} days: "
+    pct = np.array([_pct(p) for p in risk.tolist()], dtype=object)
+    past = risk_day <= today_day
+    month = _month_index(np.where(past, 0.0, risk_day))
+    tail = np.where(past, f" (house limit {limit})", _each_distinct(
+        month, lambda i: f", reaching the house limit of {limit} by {_month_of(month[i])}"))
+
+    def mostly(i):
+        names = [_position_name(fa, pos) for pos in driver_pos[i].tolist() if pos >= 0]
+        return ", mostly from " + " and ".join(names) if names else ""
+
+    pair = (driver_pos[:, 0] + 1) * (len(fa.pos_designator) + 1) + driver_pos[:, 1] + 1
+    return head + pct + tail + _each_distinct(pair, mostly)
+
+
+def _position_words(fa, today_day, pos, reach_day, threshold_is_zero):
+    """The sentence of each capacitor (a row of the arguments) reaching its
+    limit: the units of one gear model share their positions' words, so each
+    distinct (position, when, new part fails?) is worded once."""
+    code = (_when_codes(reach_day, today_day) * len(fa.pos_designator) + pos) * 2 + threshold_is_zero
+    return _each_distinct(code, lambda i: _position_reason_template(
+        fa, int(pos[i]), float(reach_day[i]), today_day, bool(threshold_is_zero[i])))
+
+
+def _age_words(policy, today_day, age_day):
+    """The calendar-age sentence of each unit (a row of ``age_day``) that gives one."""
+    years = f"{policy.calendar_age_years:g}"
+
+    def words(i):
+        day = float(age_day[i])
+        if day < today_day:
+            return f"Original capacitors over {years} years old {_since(day, today_day)}"
+        return f"Original capacitors reach {years} years of age by {_month_of(_month_index(day))}"
+
+    return _each_distinct(_when_codes(age_day, today_day), words)
 
 
 def _position_reason_template(fa, pos, reach_day, today_day, threshold_is_zero):
@@ -111,68 +150,48 @@ def _position_reason_template(fa, pos, reach_day, today_day, threshold_is_zero):
 
 def _reasons(fa, policy, today_day, damage, threshold, reaches, risk, risk_day, age_day, has_original,
              storage_reform, unpowered_months, drivers):
+    """Each unit's reasons, a list of sentences in the order of the days they
+    speak of (the reform last); an empty list for a unit with nothing to say."""
     nu = fa.n_units
     key = np.where(np.isnan(reaches), np.inf, reaches)
     first = _first_per_unit(fa.unit_index, key, nu, k=2) if fa.n_caps else np.full((nu, 2), -1)
     horizon_end = today_day + max(policy.watch_days, policy.horizon_days)
-    # Which units say anything at all, and every figure the words need, are
-    # found on whole arrays; the loop below only puts the words together.
-    # Plain lists: no numpy scalars in the loop.
-    taken = np.maximum(first, 0)
-    first_key = np.where(first >= 0, key[taken], np.inf)
-    pos_says_a = np.isfinite(first_key) & (first_key <= horizon_end)
-    risk_says_a = risk_day <= horizon_end  # NaN compares False
-    age_says_a = has_original & (age_day <= horizon_end)
-    says = (risk_says_a | pos_says_a.any(axis=1) | age_says_a | storage_reform).tolist() if nu else []
-    risk_says, pos_says, age_says = risk_says_a.tolist(), pos_says_a.tolist(), age_says_a.tolist()
-    reform = storage_reform.tolist()
-    risk_l, risk_day_l, age_l = risk.tolist(), risk_day.tolist(), age_day.tolist()
-    first_key_l = first_key.tolist()
-    first_pos = (fa.position_index[taken] if fa.n_caps else taken).tolist()
-    first_damage, first_threshold = (damage[taken].tolist(), threshold[taken].tolist()) if fa.n_caps else ([], [])
-    first_month = _months(first_key.reshape(-1))
-    risk_month, age_month = _months(risk_day), _months(age_day)
-    driver_pos = np.where(drivers >= 0, fa.position_index[np.maximum(drivers, 0)] if fa.n_caps else -1, -1).tolist()
-    months_l = unpowered_months.tolist()
-    horizon, limit = f"{policy.horizon_days:g}", _pct(policy.risk_limit)
-    years = f"{policy.calendar_age_years:g}"
-    cache, names_cache = {}, {}
-    out = []
-    for u in range(nu):
-        if not says[u]:
-            out.append([])
-            continue
-        items = []
-        if risk_says[u]:
-            when = risk_day_l[u]
-            if when <= today_day:
-                text = (f"If it works today, chance of a fault within {horizon} days: {_pct(risk_l[u])} "
-                        f"(house limit {limit})")
-            else:
-                text = (f"If it works today, chance of a fault within {horizon} days: {_pct(risk_l[u])}, "
-                        f"reaching the house limit of {limit} by {risk_month[u]}")
-            names = [_position_name(fa, names_cache, pos) for pos in driver_pos[u] if pos >= 0]
-            if names:
-                text += ", mostly from " + " and ".join(names)
-            items.append((when, text))
-        for j in (0, 1):
-            if pos_says[u][j]:
-                when = first_key_l[u][j]
-                items.append((when, _position_reason(fa, cache, first_pos[u][j], when < today_day,
-                                                     first_month[2 * u + j], when, today_day,
-                                                     first_damage[u][j], first_threshold[u][j])))
-        if age_says[u]:
-            when = age_l[u]
-            items.append((when, f"Original capacitors over {years} years old {_since(when, today_day)}"
-                                if when < today_day else f"Original capacitors reach {years} years of age by "
-                                f"{age_month[u]}"))
-        if len(items) > 1:
-            items.sort(key=lambda x: x[0])
-        words = [w for _, w in items]
-        if reform[u]:
-            words.append(f"Unpowered for {months_l[u]:.0f} months: reform the capacitors "
-                         "(bring the unit up slowly on a current-limited supply) before it goes out")
-        out.append(words)
+    # Every sentence a unit can give is made on whole arrays, as a column of
+    # `words` (None where the unit does not give it) with the day it speaks
+    # of in `days`: risk, first and second position to reach its limit,
+    # calendar age, and the reform last.  Only the rows' putting in order is
+    # left to do per unit.
+    words = np.full((nu, 5), None, dtype=object)
+    days = np.full((nu, 5), np.nan)  # NaN: not given, sorts last
+
+    gives = risk_day <= horizon_end  # NaN compares False
+    driver_pos = (np.where(drivers >= 0, fa.position_index[np.maximum(drivers, 0)], -1) if fa.n_caps
+                  else np.full_like(drivers, -1))
+    words[gives, 0] = _risk_words(fa, policy, today_day, risk[gives], risk_day[gives], driver_pos[gives])
+    days[gives, 0] = risk_day[gives]
+
+    first_key = np.full((nu, 2), np.inf)
+    first_key[first >= 0] = key[first[first >= 0]]
+    gives = np.isfinite(first_key) & (first_key <= horizon_end)
+    rows = first[gives]  # unit by unit, its first position before its second
+    words[:, 1:3][gives] = _position_words(fa, today_day, fa.position_index[rows], first_key[gives],
+                                           threshold[rows] <= 0)
+    days[:, 1:3][gives] = first_key[gives]
+
+    gives = has_original & (age_day <= horizon_end)
+    words[gives, 3] = _age_words(policy, today_day, age_day[gives])
+    days[gives, 3] = age_day[gives]
+
+    words[storage_reform, 4] = [f"Unpowered for {months:.0f} months: reform the capacitors (bring the unit up "
+                                "slowly on a current-limited supply) before it goes out"
+                                for months in unpowered_months[storage_reform].tolist()]
+    days[storage_reform, 4] = np.inf
+
+    # A stable sort keeps the columns' order among sentences of the same day.
+    order = np.argsort(days, axis=1, kind="stable")
+    out = np.take_along_axis(words, order, axis=1).tolist()
+    for unit_words, n in zip(out, (~np.isnan(days)).sum(axis=1).tolist()):
+        del unit_words[n:]
     return out
 
 
