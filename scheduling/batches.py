@@ -29,6 +29,7 @@ from django.utils import timezone
 from fleet.models import GearModel, Unit
 
 from .forecast import model_use_sums
+from .gcpause import with_collector_paused
 from .loader import history_rows, unit_rows, use_arrays
 from .models import UnitForecast
 from .services import (_options_from, _store, _store_unforecastable, forecast_compute, forecast_tables_vacuum,
@@ -53,6 +54,7 @@ def fleet_batches(batch_units=REFRESH_BATCH_UNITS):
     return [(int(ids[k]), int(ids[min(k + batch_units, ids.size) - 1])) for k in range(0, ids.size, batch_units)]
 
 
+@with_collector_paused
 def first_pass_sums(batches, *, today, min_history_days, keep=None):
     """First pass: the sums behind every gear model's mean recent use, batch
     by batch (only each unit's packed recent hires are read).  Returns
@@ -75,6 +77,7 @@ def first_pass_sums(batches, *, today, min_history_days, keep=None):
     return model_ids, total
 
 
+@with_collector_paused
 def forecast_batch(first_id, last_id, *, today, model_means, use=None, **options):
     """Forecast and store the units with ids in [first_id, last_id] (not
     retired) with the fleet's gear-model means; priorities are left as

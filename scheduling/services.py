@@ -24,6 +24,7 @@ from fleet.models import Unit
 from .checks import compute_sound
 from .days import day_to_date
 from .forecast import EngineOptions, Policy
+from .gcpause import with_collector_paused
 from .loader import active_policy, load_fleet
 from .forecast import model_use_means, model_use_sums
 from .models import ModelUse, ThermalHistory, UnitForecast
@@ -428,6 +429,7 @@ def _store(run):
     return len(unit_ids)
 
 
+@with_collector_paused
 def forecast_refresh(*, unit_ids=None, today=None, sync=True, **options):
     """Recompute and store the forecast of the given units (all when None).
 
