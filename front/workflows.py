@@ -159,9 +159,10 @@ def rental_check_in(*, unit_id, in_at=None, venue_ambient_c, powered_hours=None,
     # Only the hire closed just above changed the unit's records: the sync
     # adds it to the history and the packed recent hires (the snapshot dates
     # and fitted parts stand).
-    thermal_check_in(rental.unit, rental)
-    # Synced just above: the refresh need not look again.
-    run = forecast_refresh(unit_ids=[unit_id], today=timezone.localdate(rental.in_at), sync=False)
+    synced = thermal_check_in(rental.unit, rental)
+    # Synced just above: the refresh need not look again, nor read again the
+    # history just written and the home's temperatures just read.
+    run = forecast_refresh(unit_ids=[unit_id], today=timezone.localdate(rental.in_at), sync=False, known=synced)
     if (rental.unit.status == Unit.Status.AVAILABLE and run.fleet.n_units
             and run.result.status[0] in ("due", "overdue")):
         reasons = run.result.reasons[0]  # what the refresh just stored

@@ -292,7 +292,18 @@ def stored_model_means(model_ids):
             for j, name in enumerate(names)}
 
 
-def load_fleet(*, unit_ids=None, today, min_history_days=180, id_range=None, model_means="stored", use=None):
+def history_row_of(history):
+    """A ThermalHistory object as ``history_rows`` gives its row (times as the
+    databases cast them to text, to the second, UTC)."""
+    def text(moment):
+        return None if moment is None else moment.astimezone(dt.timezone.utc).strftime("%Y-%m-%d %H:%M:%S")
+
+    return (bytes(history.powered), bytes(history.unpowered), text(history.accounted_until),
+            text(history.last_powered_at), bytes(history.parts), bytes(history.recent), history.parts_version)
+
+
+def load_fleet(*, unit_ids=None, today, min_history_days=180, id_range=None, model_means="stored", use=None,
+               known=None):
     """Everything the engine needs, as arrays (see FleetArrays).
 
     ``unit_ids`` (a list) or ``id_range`` (first, last) choose the units;
@@ -301,7 +312,10 @@ def load_fleet(*, unit_ids=None, today, min_history_days=180, id_range=None, mod
     forecast of a few units; None: from the units loaded; or a dict of
     arrays as ``forecast.model_use_means`` gives).  ``use``: the units'
     recent use as a first pass read it (unit ids, then ``use_arrays``'s
-    four arrays), taken when the units loaded are the same."""
+    four arrays), taken when the units loaded are the same.  ``known``: what
+    the caller's transaction just wrote or read for ``unit_ids``
+    (``thermal.CheckInSync``), not read again: its history, when it is the
+    only unit, and its home's monthly temperatures."""
     units = unit_rows(unit_ids=unit_ids, id_range=id_range)
     ids = [u[0] for u in units]
     filter_ids = None if unit_ids is None and id_range is None else ids
@@ -319,7 +333,10 @@ def load_fleet(*, unit_ids=None, today, min_history_days=180, id_range=None, mod
     hu = np.zeros((n, H.N_BINS))
     accounted = joined_day.copy()  # a unit without a history counts from joining
     last_powered = np.full(n, np.nan)
-    histories = history_rows(unit_ids=unit_ids, id_range=id_range)
+    if known is not None and ids == [known.history.unit_id] and unit_ids is not None:
+        histories = {known.history.unit_id: history_row_of(known.history)}
+    else:
+        histories = history_rows(unit_ids=unit_ids, id_range=id_range)
     rows = [(k, histories[uid]) for k, uid in enumerate(ids) if uid in histories]
     if rows:
         k = np.array([r[0] for r in rows], dtype=np.int64)
@@ -328,7 +345,9 @@ def load_fleet(*, unit_ids=None, today, min_history_days=180, id_range=None, mod
         accounted[k] = _days_from_text([r[1][2] for r in rows])
         last_powered[k] = _days_from_text([r[1][3] for r in rows])
 
-    temps = location_monthly_temps({u[3] for u in units})
+    homes = {u[3] for u in units}
+    temps = known.location_temps if known is not None and homes <= set(known.location_temps) \
+        else location_monthly_temps(homes)
     monthly = np.array([temps[u[3]] for u in units]).reshape(n, 12)
 
     if use is not None and np.array_equal(use[0], unit_ids_arr):

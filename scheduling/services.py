@@ -145,7 +145,7 @@ class ForecastRun:
 
 def forecast_compute(*, unit_ids=None, today=None, law=None, activation_energy_ev=None, esr_feedback=False,
                      weibull_shape=None, frailty_sigma=None, policy=None, id_range=None, model_means="stored",
-                     use=None):
+                     use=None, known=None):
     """Compute forecasts without storing them; returns a ForecastRun.
 
     The whole fleet (no ``unit_ids``, no ``id_range``) fills units without
@@ -157,7 +157,7 @@ def forecast_compute(*, unit_ids=None, today=None, law=None, activation_energy_e
     policy_row = policy or active_policy()
     started = time.perf_counter()
     fleet = load_fleet(unit_ids=unit_ids, today=today, min_history_days=options.min_history_days,
-                       id_range=id_range, model_means=model_means, use=use)
+                       id_range=id_range, model_means=model_means, use=use, known=known)
     sums = None
     if unit_ids is None and id_range is None:
         sums = fleet_use_sums(fleet)

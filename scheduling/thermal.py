@@ -471,8 +471,10 @@ def thermal_check_in(unit, rental):
     from the row itself, and the row is written once, without its unchanged
     packed parts: three queries.  Anything else goes the general way,
     ``thermal_sync(hire_closed=True)``.  Either way the row ends as a full
-    sync would write it (a test holds them equal).  Returns True when the
-    short way was taken."""
+    sync would write it (a test holds them equal).  Returns, when the short
+    way was taken, what the forecast that follows would read again: a
+    ``CheckInSync`` (the history as written, the home's monthly
+    temperatures); else None."""
     if not transaction.get_connection().in_atomic_block:
         raise ValueError("thermal_check_in needs the caller's transaction that closed the hire.")
     version = unit.records_version
@@ -483,11 +485,11 @@ def thermal_check_in(unit, rental):
             or not R.is_pack(history.recent) or rental.in_at is None
             or history.basis != exposure_basis(unit, history.rise_k)):
         thermal_sync(unit_ids=[unit.pk], until=rental.in_at, hire_closed=True)
-        return False
+        return None
     temps = location_monthly_temps([unit.home_location_id])[unit.home_location_id]
     if not _extend_with(unit, history, [rental], temps, history.rise_k):
         thermal_sync(unit_ids=[unit.pk], until=rental.in_at, hire_closed=True)
-        return False
+        return None
     # The recent hires: those of the pack still within KEEP_DAYS, then this one
     # (what thermal_repack reads from the hires table, without reading it).
     complete_from = (timezone.now() - dt.timedelta(days=R.KEEP_DAYS)).timestamp() / 86400.0
@@ -501,7 +503,16 @@ def thermal_check_in(unit, rental):
     history.save(update_fields=["powered", "unpowered", "accounted_until", "last_powered_at", "rentals_counted",
                                 "powered_hours_counted", "records_version", "basis", "recent", "parts_version",
                                 "updated_at"])
-    return True
+    return CheckInSync(history=history, location_temps={unit.home_location_id: temps})
+
+
+@dataclass
+class CheckInSync:
+    """What ``thermal_check_in`` wrote and read, for the forecast that follows
+    in the same transaction (``loader.load_fleet``'s ``known``)."""
+
+    history: ThermalHistory
+    location_temps: dict  # {location id: monthly temperatures [degC], ndarray(12)}
 
 
 @transaction.atomic

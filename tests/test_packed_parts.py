@@ -170,7 +170,12 @@ def _check_in_both_ways(monkeypatch, unit_id, out, *, hires_before=()):
 
     took = []
     short_way = thermal.thermal_check_in
-    monkeypatch.setattr(workflows, "thermal_check_in", lambda unit, rental: took.append(short_way(unit, rental)))
+
+    def spied(unit, rental):
+        took.append(short_way(unit, rental))
+        return took[-1]
+
+    monkeypatch.setattr(workflows, "thermal_check_in", spied)
 
     def check_in():
         workflows.rental_check_in(unit_id=unit_id, in_at=out + dt.timedelta(days=2), venue_ambient_c=31.0,
@@ -187,10 +192,13 @@ def _check_in_both_ways(monkeypatch, unit_id, out, *, hires_before=()):
     except Undo:
         pass
     # The reference: every step of the sync, nothing skipped.
-    monkeypatch.setattr(workflows, "thermal_check_in",
-                        lambda unit, rental: thermal_sync(unit_ids=[unit.pk], until=rental.in_at))
+    def full_sync(unit, rental):
+        thermal_sync(unit_ids=[unit.pk], until=rental.in_at)
+        return None  # nothing known: the forecast reads everything again
+
+    monkeypatch.setattr(workflows, "thermal_check_in", full_sync)
     full = check_in()
-    return short, full, took == [True]
+    return short, full, [x is not None for x in took] == [True]
 
 
 def test_a_check_in_keeps_what_a_full_sync_would_write(fleet, monkeypatch):
@@ -254,3 +262,38 @@ def test_a_check_in_after_other_changes_reads_the_parts_again(fleet):
                               powered_hours=20.0)
     assert _pack_matches_rows(fleet.other.pk)
     assert set(P.unpack_many([ThermalHistory.objects.get(unit=fleet.other).parts])["rated_life_h"]) == {12345.0}
+
+
+def test_the_forecast_after_a_check_in_takes_what_the_check_in_wrote_instead_of_reading_it(fleet):
+    """The check-in hands the history it wrote and the home's temperatures it
+    read to the forecast that follows: the same arrays, two queries fewer."""
+    import dataclasses
+
+    from django.db import connection, transaction
+    from django.test.utils import CaptureQueriesContext
+
+    from fleet import services as register
+    from scheduling.thermal import thermal_check_in
+
+    unit_id = fleet.other.pk
+    out = timezone.now() - dt.timedelta(days=3)
+    workflows.rental_check_out(unit_id=unit_id, job_ref="J-4", out_at=out, override_reason="test hire")
+    with transaction.atomic():
+        rental = register.rental_close(unit_id=unit_id, in_at=out + dt.timedelta(days=2), venue_ambient_c=31.0,
+                                       powered_hours=20.0)
+        known = thermal_check_in(rental.unit, rental)
+        assert known is not None
+        with CaptureQueriesContext(connection) as given_queries:
+            given = load_fleet(unit_ids=[unit_id], today=timezone.localdate(), known=known)
+        with CaptureQueriesContext(connection) as read_queries:
+            read = load_fleet(unit_ids=[unit_id], today=timezone.localdate())
+    for f in dataclasses.fields(read):
+        a, b = getattr(given, f.name), getattr(read, f.name)
+        if isinstance(b, np.ndarray):
+            assert np.array_equal(a, b, equal_nan=b.dtype.kind == "f"), f.name
+        elif isinstance(b, dict):
+            assert a.keys() == b.keys() and all(np.array_equal(a[k], b[k], equal_nan=True) for k in b), f.name
+        else:
+            assert a == b, f.name
+    assert read.accounted_day[0] == pytest.approx(rental.in_at.timestamp() / 86400.0, abs=1 / 86400)
+    assert len(read_queries) - len(given_queries) == 2
