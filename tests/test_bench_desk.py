@@ -32,7 +32,7 @@ def test_it_checks_units_out_and_in_through_the_server_and_records_the_figures(b
     forecast_refresh()
     before = {u.pk: u.status for u in Unit.objects.all()}
     out = io.StringIO()
-    call_command("bench_desk", units=3, warmup=1, workers=1, stdout=out)
+    call_command("bench_desk", units=3, warmup=1, workers=1, in_process=3, stdout=out)
     text = out.getvalue()
 
     vendor = "postgres" if "postgres" in text else "sqlite"
@@ -45,15 +45,23 @@ def test_it_checks_units_out_and_in_through_the_server_and_records_the_figures(b
     assert re.search(rf"Queries per check-in: {figures[f'checkin_queries_{vendor}']} for the POST with its "
                      r"verdict, \d+ for a reload of the verdict", text), text
 
-    # The server did the work: four hires through it (one warm-up, three timed) and one in this
+    # Where the time goes, from the two check-ins in this process after the one that counts queries.
+    assert re.search(r"Where a check-in's time goes, in this process \(medians of 2\): the POST with its verdict "
+                     r"[\d.]+ ms: closing the hire [\d.]+, the history's sync [\d.]+, the forecast [\d.]+ "
+                     r"\(load [\d.]+, compute [\d.]+, store [\d.]+\)", text), text
+    assert "budget p95 50 ms: " in text
+
+    # The server did the work: four hires through it (one warm-up, three timed) and three in this
     # process, each checked out and back in by the desk user, each with its refreshed forecast.
     desk = get_user_model().objects.get(username=bench_desk.USERNAME)
     hires = Rental.objects.filter(job_ref__startswith=bench_desk.JOB_PREFIX)
-    assert hires.count() == 5
+    assert hires.count() == 7
     assert not hires.filter(in_at__isnull=True).exists()
     assert set(hires.values_list("checked_in_by", flat=True)) == {desk.pk}
     assert set(hires.values_list("checked_out_by", flat=True)) == {desk.pk}
-    through_server = hires.exclude(job_ref=f"{bench_desk.JOB_PREFIX}-Q")
+    through_server = hires.exclude(job_ref__startswith=f"{bench_desk.JOB_PREFIX}-Q")
+    assert sorted(hires.filter(job_ref__startswith=f"{bench_desk.JOB_PREFIX}-Q").values_list("job_ref", flat=True)) \
+        == [f"{bench_desk.JOB_PREFIX}-Q", f"{bench_desk.JOB_PREFIX}-Q1", f"{bench_desk.JOB_PREFIX}-Q2"]
     assert sorted(through_server.values_list("job_ref", flat=True)) == [
         f"{bench_desk.JOB_PREFIX}-{k:05d}" for k in range(4)]
     for hire in hires:
