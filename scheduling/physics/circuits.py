@@ -10,7 +10,7 @@ import numpy as np
 from scheduling import parameters as P
 from scheduling import roots
 
-from .drift import capacitance_at_damage, esr_at_damage
+from .drift import _capacitance_at, _esr_at
 from .validation import _check, _check_range, _out
 
 
@@ -62,7 +62,12 @@ def inverter_output_resistance_ohm(pump_hz, c_fly_f, esr_fly_ohm, esr_res_ohm, s
     e2 = _check("esr_res_ohm", esr_res_ohm, "nonnegative")
     rsw = _check("switch_ohm", switch_ohm, "nonnegative")
     k = _check("flying_esr_factor", flying_esr_factor, "nonnegative")
-    return _out(rsw + 1.0 / (f * c1) + k * e1 + e2)
+    return _out(_inverter_rout(f, c1, e1, e2, rsw, k))
+
+
+def _inverter_rout(f, c1, e1, e2, rsw, k):
+    """:func:`inverter_output_resistance_ohm` on float arrays already checked."""
+    return rsw + 1.0 / (f * c1) + k * e1 + e2
 
 
 def inverter_output_v(vin_v, load_a, pump_hz, c_fly_f, c_res_f, esr_fly_ohm, esr_res_ohm,
@@ -106,7 +111,12 @@ def inverter_output_v(vin_v, load_a, pump_hz, c_fly_f, c_res_f, esr_fly_ohm, esr
     _check("c_res_f", c_res_f, "positive")
     rout = inverter_output_resistance_ohm(pump_hz, c_fly_f, esr_fly_ohm, esr_res_ohm,
                                           switch_ohm, flying_esr_factor)
-    return _out(0.0 - np.maximum(vin - i * rout, 0.0))
+    return _out(_inverter_v(vin, i, rout))
+
+
+def _inverter_v(vin, i, rout):
+    """:func:`inverter_output_v` from the output resistance, on checked float arrays."""
+    return 0.0 - np.maximum(vin - i * rout, 0.0)
 
 
 def inverter_ripple_vpp(load_a, pump_hz, c_res_f, esr_res_ohm):
@@ -264,7 +274,12 @@ def reservoir_ripple_vpp(load_a, ripple_hz, capacitance_f, esr_ohm, peak_current
         ipk = P.PEAK_TO_LOAD_CURRENT_RATIO * i
     else:
         ipk = _check("peak_current_a", peak_current_a, "nonnegative")
-    return _out(i / (f * c) + ipk * esr)
+    return _out(_ripple_vpp(i, f, c, esr, ipk))
+
+
+def _ripple_vpp(i, f, c, esr, ipk):
+    """:func:`reservoir_ripple_vpp` on float arrays already checked."""
+    return i / (f * c) + ipk * esr
 
 
 # --- 8. role-aware damage thresholds ---------------------------------------
@@ -353,16 +368,19 @@ def threshold_pump(vin_v, load_a, pump_hz, c_fly_f, c_res_f, esr_fly0_ohm, esr_r
     inverter_output_v(*parts, flying_esr_factor)  # validates every argument once
     shape = np.broadcast_shapes(*(np.shape(a) for a in parts), vmin.shape, od.shape, is_fly.shape)
 
+    # Checked once here; the bisection's margin uses the unchecked kernels
+    # (every damage it tries lies in [0, DAMAGE_MAX]).
+    r = _check_range("esr_ratio_at_end", esr_ratio_at_end, 1.0, np.inf)
+    loss = _check_range("capacitance_loss_at_end", capacitance_loss_at_end, 0.0, 1.0)
+    i, f, c1, e1, e2, rsw, k = (np.asarray(a, dtype=np.float64) for a in (
+        load_a, pump_hz, c_fly_f, esr_fly0_ohm, esr_res0_ohm, switch_ohm, flying_esr_factor))
+
     def margin(d):
         d_fly = np.where(is_fly, d, od)
         d_res = np.where(is_fly, od, d)
-        v = inverter_output_v(vin, load_a, pump_hz,
-                              capacitance_at_damage(c_fly_f, d_fly, capacitance_loss_at_end),
-                              capacitance_at_damage(c_res_f, d_res, capacitance_loss_at_end),
-                              esr_at_damage(esr_fly0_ohm, d_fly, esr_ratio_at_end),
-                              esr_at_damage(esr_res0_ohm, d_res, esr_ratio_at_end),
-                              switch_ohm, flying_esr_factor)
-        return -np.asarray(v) - vmin
+        rout = _inverter_rout(f, _capacitance_at(c1, d_fly, loss), _esr_at(e1, d_fly, r), _esr_at(e2, d_res, r),
+                              rsw, k)
+        return -_inverter_v(vin, i, rout) - vmin
 
     return _bisect_threshold(margin, shape)
 
@@ -454,10 +472,13 @@ def threshold_reservoir(load_a, ripple_hz, c0_f, esr0_ohm, ripple_limit_v, peak_
                                 np.shape(0.0 if peak_current_a is None else peak_current_a),
                                 vmax.shape)
 
+    # Checked once here; the bisection's margin uses the unchecked kernels.
+    r = _check_range("esr_ratio_at_end", esr_ratio_at_end, 1.0, np.inf)
+    loss = _check_range("capacitance_loss_at_end", capacitance_loss_at_end, 0.0, 1.0)
+    i, f, c0, e0 = (np.asarray(a, dtype=np.float64) for a in (load_a, ripple_hz, c0_f, esr0_ohm))
+    ipk = P.PEAK_TO_LOAD_CURRENT_RATIO * i if peak_current_a is None else np.asarray(peak_current_a, dtype=np.float64)
+
     def margin(d):
-        v = reservoir_ripple_vpp(load_a, ripple_hz,
-                                 capacitance_at_damage(c0_f, d, capacitance_loss_at_end),
-                                 esr_at_damage(esr0_ohm, d, esr_ratio_at_end), peak_current_a)
-        return vmax - np.asarray(v)
+        return vmax - _ripple_vpp(i, f, _capacitance_at(c0, d, loss), _esr_at(e0, d, r), ipk)
 
     return _bisect_threshold(margin, shape)

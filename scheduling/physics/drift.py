@@ -49,7 +49,13 @@ def esr_at_damage(esr0_ohm, damage, esr_ratio_at_end=P.ESR_RATIO_AT_END):
     e0 = _check("esr0_ohm", esr0_ohm, "nonnegative")
     d = _check("damage", damage, "nonnegative")
     r = _check_range("esr_ratio_at_end", esr_ratio_at_end, 1.0, np.inf)
-    return _out(e0 * r**d)
+    return _out(_esr_at(e0, d, r))
+
+
+def _esr_at(e0, d, r):
+    """:func:`esr_at_damage` on float arrays already checked (the root finders'
+    inner loops call it many times on the same arguments)."""
+    return e0 * r**d
 
 
 def capacitance_at_damage(c0_f, damage, capacitance_loss_at_end=P.CAPACITANCE_LOSS_AT_END):
@@ -90,7 +96,12 @@ def capacitance_at_damage(c0_f, damage, capacitance_loss_at_end=P.CAPACITANCE_LO
     c0 = _check("c0_f", c0_f, "positive")
     d = _check("damage", damage, "nonnegative")
     loss = _check_range("capacitance_loss_at_end", capacitance_loss_at_end, 0.0, 1.0)
-    return _out(c0 * np.maximum(1.0 - loss * d, P.CAPACITANCE_FLOOR_FRACTION))
+    return _out(_capacitance_at(c0, d, loss))
+
+
+def _capacitance_at(c0, d, loss):
+    """:func:`capacitance_at_damage` on float arrays already checked."""
+    return c0 * np.maximum(1.0 - loss * d, P.CAPACITANCE_FLOOR_FRACTION)
 
 
 def damage_from_esr(esr0_ohm, esr_ohm, esr_ratio_at_end=P.ESR_RATIO_AT_END):
