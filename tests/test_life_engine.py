@@ -18,7 +18,7 @@ from django.utils import timezone
 from front import workflows as services
 from fleet.models import GearModel, Location, MaintenancePolicy, Position, Unit
 from scheduling import histogram as H
-from scheduling import physics, thermal
+from scheduling import exposure, physics, thermal
 from scheduling.forecast import EngineOptions, Policy, compute
 from scheduling.loader import load_fleet
 from scheduling.models import ThermalHistory, UnitForecast
@@ -105,7 +105,7 @@ def test_history_accounts_for_every_hour_since_manufacture(effects_model, store)
     thermal.thermal_advance_storage(until=until)
     h = ThermalHistory.objects.get(unit=unit)
     total = H.from_bytes(h.powered).sum() + H.from_bytes(h.unpowered).sum()
-    expected = (until - thermal.manufactured_at(unit.year_made)).total_seconds() / 3600
+    expected = (until - exposure.manufactured_at(unit.year_made)).total_seconds() / 3600
     assert total == pytest.approx(expected, rel=1e-9)
     # the hire's powered hours sit at venue ambient + the model's internal rise (31 + 10 degC)
     assert H.from_bytes(h.powered)[H.bin_index(41.0)] == pytest.approx(30.0)
@@ -120,7 +120,7 @@ def test_storage_only_damage_matches_the_ten_kelvin_rule_table(db):
     general(model, "C1", rated_temp_c=105, rated_life_h=2000)
     unit = services.unit_create(asset_tag="OV-1", gear_model=model, year_made=2020, joined_on=dt.date(2020, 7, 1),
                                 home_location=warm, prior_powered_h_per_year=0, prior_storage_c=65.0)
-    start = thermal.manufactured_at(2020)
+    start = exposure.manufactured_at(2020)
     until = start + dt.timedelta(hours=16_000)
     thermal.thermal_advance_storage(until=until)
     run = forecast_compute(today=until.date(), unit_ids=[unit.pk])

@@ -39,7 +39,7 @@ def forwards(apps, schema_editor):
     for history in History.objects.select_related("unit", "unit__gear_model"):
         unit = history.unit
         history.rentals_counted, history.powered_hours_counted = counted.get(history.unit_id, (0, 0.0))
-        # as scheduling.thermal.exposure_basis writes it
+        # as scheduling.exposure.exposure_basis writes it
         history.basis = (f"{unit.year_made}|{unit.joined_on.isoformat()}|{float(unit.prior_powered_h_per_year)!r}|"
                          f"{float(unit.prior_ambient_c)!r}|{float(unit.prior_storage_c)!r}|"
                          f"{float(unit.gear_model.internal_rise_k)!r}")

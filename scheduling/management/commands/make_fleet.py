@@ -11,7 +11,7 @@ each unit's thermal history.
 
 Everything is written in bulk, a statement per few thousand rows, never a
 query per unit.  The thermal histories are accumulated in numpy straight from
-the generated hires with the same rules as ``scheduling.thermal.build_history``
+the generated hires with the same rules as ``scheduling.exposure.build_history``
 (prior use, hires, storage at the home store's monthly temperature); a test
 holds them equal to ``thermal_rebuild``.  Hires never cross a calendar month
 (UTC), which is what lets storage be counted per month as "hours of the month
@@ -30,7 +30,7 @@ from fleet.models import GearModel, Location, Position, Rental, Role, Unit, Unit
 from fleet.services import RATING_FIELDS
 from scheduling import histogram as H
 from scheduling.models import ThermalHistory
-from scheduling.thermal import add_prior_use, exposure_basis, joined_at, month_hours
+from scheduling.exposure import add_prior_use, exposure_basis, joined_at, month_hours
 
 MAKER = "Synthetic Works"
 TAG_PREFIX = "SYN-"
