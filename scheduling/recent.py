@@ -23,6 +23,13 @@ KEEP_DAYS = 400
 _HEAD = len(TAG) + 8  # tag, then the first day (float64) from which the pack is complete
 
 
+def hire_row(out_at, in_at, powered_h, ambient_c):
+    """One closed hire as a HIRE_ROW record (a tuple): its moments as float
+    days since 1970-01-01, NULL figures as NaN."""
+    return (out_at.timestamp() / 86400.0, in_at.timestamp() / 86400.0,
+            np.nan if powered_h is None else powered_h, np.nan if ambient_c is None else ambient_c)
+
+
 def pack(rows, complete_from_day):
     """Bytes of one unit's hires (HIRE_ROW array) complete from ``complete_from_day``."""
     return TAG + np.float64(complete_from_day).tobytes() + np.ascontiguousarray(rows, dtype=HIRE_ROW).tobytes()

@@ -365,10 +365,8 @@ def _store(run):
         packed[name] = rows(getattr(r, name))
     packed["measured_day"] = rows(r.readings.measured_day)
     packed["rate_factor"] = rows(r.readings.rate_factor)
-    blob = memoryview(packed).cast("B")
-    size = POSITION_DTYPE.itemsize
-    bounds = zip((run._starts * size).tolist(), (run._ends * size).tolist())
-    positions = [POSITION_LAYOUT + lz4.block.compress(blob[a:b]) for a, b in bounds]
+    # Each unit's records are a slice of them, packed where they lie.
+    positions = [pack_positions(packed[a:b]) for a, b in zip(run._starts.tolist(), run._ends.tolist())]
     unit_ids = fa.unit_id.tolist()
     due = _day_dates(r.due_day)
     risk = r.risk.astype(float).tolist()
@@ -494,7 +492,9 @@ def _store_unforecastable(run):
 def pack_positions(records):
     """Per-position results (a POSITION_DTYPE array) as stored in
     UnitForecast.positions: the tag, then the records compressed."""
-    return POSITION_LAYOUT + lz4.block.compress(np.ascontiguousarray(records, dtype=POSITION_DTYPE).tobytes())
+    if not (isinstance(records, np.ndarray) and records.dtype == POSITION_DTYPE and records.flags.c_contiguous):
+        records = np.ascontiguousarray(records, dtype=POSITION_DTYPE)
+    return POSITION_LAYOUT + lz4.block.compress(records)  # read in place: no copy of the records
 
 
 def stored_positions(forecast):

@@ -236,14 +236,10 @@ def _repack(unit_ids, known, kept, changed):
         for unit_id, out_at, in_at, powered, ambient in (
                 Rental.objects.filter(unit_id__in=chunk, in_at__gte=since).order_by("in_at")
                 .values_list("unit_id", "out_at", "in_at", "powered_hours", "venue_ambient_c")):
-            hires[unit_id].append((out_at.timestamp() / 86400.0, in_at.timestamp() / 86400.0,
-                                   np.nan if powered is None else powered, np.nan if ambient is None else ambient))
+            hires[unit_id].append(R.hire_row(out_at, in_at, powered, ambient))
         rows = []
         for unit_id in chunk:
-            recent = np.array(hires.get(unit_id, []), dtype=float).reshape(-1, 4)
-            packed = np.zeros(recent.shape[0], dtype=R.HIRE_ROW)
-            for j, name in enumerate(R.HIRE_ROW.names):
-                packed[name] = recent[:, j]
+            packed = np.array(hires.get(unit_id, []), dtype=R.HIRE_ROW)
             packs = {"parts": parts[unit_id], "recent": R.pack(packed, complete_from),
                      "parts_version": versions.get(unit_id, -1)}
             history = changed.get(unit_id)
@@ -385,9 +381,8 @@ def thermal_check_in(unit, rental):
     # (what thermal_repack reads from the hires table, without reading it).
     complete_from = (timezone.now() - dt.timedelta(days=R.KEEP_DAYS)).timestamp() / 86400.0
     kept = R.rows_of(history.recent)
-    added = np.array([(rental.out_at.timestamp() / 86400.0, rental.in_at.timestamp() / 86400.0,
-                       np.nan if rental.powered_hours is None else rental.powered_hours,
-                       np.nan if rental.venue_ambient_c is None else rental.venue_ambient_c)], dtype=R.HIRE_ROW)
+    added = np.array([R.hire_row(rental.out_at, rental.in_at, rental.powered_hours, rental.venue_ambient_c)],
+                     dtype=R.HIRE_ROW)
     hires = np.concatenate([kept[kept["in_day"] >= complete_from], added])
     history.recent = R.pack(hires[np.argsort(hires["in_day"], kind="stable")], complete_from)
     history.parts_version = version
