@@ -401,7 +401,7 @@ def _store(run):
                 # of spilling to a temporary file past the default 4 MB.
                 raw.execute(f"SET LOCAL work_mem = '{STORE_WORK_MEM_MB}MB'")
             raw.execute(
-                insert + "SELECT u, %b, s, d, r, %b::integer, m, f, j::jsonb, p, a, o, h, c, k FROM unnest("
+                insert + "SELECT u, %b, s, d, r, %b::integer, m, f, j, p, a, o, h, c, k FROM unnest("
                 "%b::bigint[], %b::text[], %b::date[], %b::float8[], %b::float8[], %b::bool[], %b::text[], "
                 "%b::bytea[], %b::date[], %b::integer[], %b::float8[], %b::float8[], %b::integer[]) "
                 "AS x(u, s, d, r, m, f, j, p, a, o, h, c, k) " + conflict,
