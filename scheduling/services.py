@@ -8,6 +8,7 @@ it twice leaves the same rows.  A unit whose figures the engine cannot use
 reason in words, and every other unit is forecast as usual.
 """
 
+import contextlib
 import datetime as dt
 import json
 import logging
@@ -339,13 +340,50 @@ def action_role_masks(run):
 #: transaction to STORE_WORK_MEM_MB (enough for 50,000 units at once).
 STORE_WORK_MEM_FROM_UNITS = 2000
 STORE_WORK_MEM_MB = 64
+#: PostgreSQL: a store of many units goes in statements of this many units,
+#: pipelined (psycopg's pipeline mode): the server writes one while this
+#: process makes the next, instead of one waiting for the other.
+STORE_STATEMENT_UNITS = 2500
+
+_STORE_COLUMNS = ["unit_id", "computed_at", "status", "due_date", "risk", "horizon_days", "max_damage_ratio",
+                  "storage_reform", "reasons", "positions", "act_by", "priority", "hire_risk", "score",
+                  "action_roles"]
+
+
+def _store_sql():
+    """The upsert of forecast rows: its INSERT head and ON CONFLICT tail."""
+    qn = connection.ops.quote_name
+    table = qn(UnitForecast._meta.db_table)
+    updates = ", ".join(f"{qn(c)} = excluded.{qn(c)}" for c in _STORE_COLUMNS[1:])
+    return (f"INSERT INTO {table} ({', '.join(qn(c) for c in _STORE_COLUMNS)}) ",
+            f"ON CONFLICT ({qn('unit_id')}) DO UPDATE SET {updates}")
+
+
+def _store_rows(run, packed, roles, first, last):
+    """The column values of units ``first`` to ``last`` - 1 of ``run``, in
+    the order of _STORE_COLUMNS less computed_at and horizon_days (the same
+    for every row); ``packed``: every position's record, ``roles``: every
+    unit's ``action_role_masks``."""
+    fa, r = run.fleet, run.result
+    sl = slice(first, last)
+    # Each unit's records are a slice of the positions, packed where they lie.
+    positions = [pack_positions(packed[a:b])
+                 for a, b in zip(run._starts[sl].tolist(), run._ends[sl].tolist())]
+    return [
+        fa.unit_id[sl].tolist(), list(r.status[sl]), _day_dates(r.due_day[sl]), r.risk[sl].astype(float).tolist(),
+        r.max_damage_ratio[sl].astype(float).tolist(), r.storage_reform[sl].astype(bool).tolist(),
+        [_json_words(words) for words in r.reasons[sl]], positions, _day_dates(r.act_by_day[sl]),
+        [p or None for p in r.priority[sl].tolist()], r.hire_risk[sl].astype(float).tolist(),
+        r.score[sl].astype(float).tolist(), roles[sl].tolist(),
+    ]
 
 
 def _store(run):
-    """Upsert one UnitForecast row per unit in a single statement.
+    """Upsert one UnitForecast row per unit.
 
-    PostgreSQL: one ``INSERT ... SELECT FROM unnest(arrays) ON CONFLICT``, all
-    rows in one round trip.  SQLite: one prepared ``INSERT ... ON CONFLICT``
+    PostgreSQL: ``INSERT ... SELECT FROM unnest(arrays) ON CONFLICT``, the
+    arrays in binary; up to STORE_STATEMENT_UNITS units a statement, the
+    statements pipelined.  SQLite: one prepared ``INSERT ... ON CONFLICT``
     run over the rows (``executemany``, in-process, no round trips).
     """
     fa, r = run.fleet, run.result
@@ -365,66 +403,60 @@ def _store(run):
         packed[name] = rows(getattr(r, name))
     packed["measured_day"] = rows(r.readings.measured_day)
     packed["rate_factor"] = rows(r.readings.rate_factor)
-    # Each unit's records are a slice of them, packed where they lie.
-    positions = [pack_positions(packed[a:b]) for a, b in zip(run._starts.tolist(), run._ends.tolist())]
-    unit_ids = fa.unit_id.tolist()
-    due = _day_dates(r.due_day)
-    risk = r.risk.astype(float).tolist()
-    ratio = r.max_damage_ratio.astype(float).tolist()
-    reform = r.storage_reform.astype(bool).tolist()
-    reasons = [_json_words(words) for words in r.reasons]
+    n = fa.n_units
+    roles = action_role_masks(run)
     horizon = int(run.policy.horizon_days)
-    act_by = _day_dates(r.act_by_day)
-    priority = [p or None for p in r.priority.tolist()]
-    hire_risk = r.hire_risk.astype(float).tolist()
-    score = r.score.astype(float).tolist()
-    roles = action_role_masks(run).tolist()
-
-    columns = ["unit_id", "computed_at", "status", "due_date", "risk", "horizon_days", "max_damage_ratio",
-               "storage_reform", "reasons", "positions", "act_by", "priority", "hire_risk", "score",
-               "action_roles"]
-    qn = connection.ops.quote_name
-    table = qn(UnitForecast._meta.db_table)
-    updates = ", ".join(f"{qn(c)} = excluded.{qn(c)}" for c in columns[1:])
-    conflict = f"ON CONFLICT ({qn('unit_id')}) DO UPDATE SET {updates}"
-    insert = f"INSERT INTO {table} ({', '.join(qn(c) for c in columns)}) "
+    insert, conflict = _store_sql()
     with transaction.atomic(savepoint=False), connection.cursor() as cursor:
         if connection.vendor == "postgresql":
-            # Server-side binding with binary parameters: the arrays travel as
-            # they are, not quoted into the SQL text.
-            import psycopg
-
-            raw = psycopg.Cursor(connection.connection)
-            started = time.monotonic()
-            if len(unit_ids) > STORE_WORK_MEM_FROM_UNITS:
-                # The unnested rows (about 1 KB a unit) stay in memory instead
-                # of spilling to a temporary file past the default 4 MB.
-                raw.execute(f"SET LOCAL work_mem = '{STORE_WORK_MEM_MB}MB'")
-            raw.execute(
-                insert + "SELECT u, %b, s, d, r, %b::integer, m, f, j, p, a, o, h, c, k FROM unnest("
-                "%b::bigint[], %b::text[], %b::date[], %b::float8[], %b::float8[], %b::bool[], %b::text[], "
-                "%b::bytea[], %b::date[], %b::integer[], %b::float8[], %b::float8[], %b::integer[]) "
-                "AS x(u, s, d, r, m, f, j, p, a, o, h, c, k) " + conflict,
-                [now, horizon, unit_ids, list(r.status), due, risk, ratio, reform, reasons, positions,
-                 act_by, priority, hire_risk, score, roles],
-            )
-            raw.close()
-            if connection.queries_logged:  # a raw cursor: log it as Django's own cursors do
-                connection.queries_log.append({"sql": f"INSERT INTO {table} ... unnest (one statement)",
-                                               "time": f"{time.monotonic() - started:.3f}"})
+            _store_postgresql(run, packed, roles, now, horizon, insert, conflict)
         else:
             conn = connections[DEFAULT_DB_ALIAS]
             computed_at = UnitForecast._meta.get_field("computed_at").get_db_prep_save(now, conn)
+            u, s, due, risk, ratio, reform, reasons, positions, act_by, priority, hire_risk, score, masks = (
+                _store_rows(run, packed, roles, 0, n))
             due_text = [None if d is None else d.isoformat() for d in due]
             act_text = [None if d is None else d.isoformat() for d in act_by]
             cursor.executemany(
-                insert + f"VALUES ({', '.join(['%s'] * len(columns))}) " + conflict,
-                [(uid, computed_at, s, d, rk, horizon, m, f, j, p, a, o, h, c, k)
-                 for uid, s, d, rk, m, f, j, p, a, o, h, c, k
-                 in zip(unit_ids, r.status, due_text, risk, ratio, reform, reasons, positions, act_text, priority,
-                        hire_risk, score, roles)],
+                insert + f"VALUES ({', '.join(['%s'] * len(_STORE_COLUMNS))}) " + conflict,
+                [(uid, computed_at, st, d, rk, horizon, m, f, j, p, a, o, h, c, k)
+                 for uid, st, d, rk, m, f, j, p, a, o, h, c, k
+                 in zip(u, s, due_text, risk, ratio, reform, reasons, positions, act_text, priority,
+                        hire_risk, score, masks)],
             )
-    return len(unit_ids)
+    return n
+
+
+def _store_postgresql(run, packed, roles, now, horizon, insert, conflict):
+    """The PostgreSQL half of ``_store``: server-side binding with binary
+    parameters (the arrays travel as they are, not quoted into the SQL
+    text), a statement per STORE_STATEMENT_UNITS units, pipelined."""
+    import psycopg
+
+    n = run.fleet.n_units
+    sql = (insert + "SELECT u, %b, s, d, r, %b::integer, m, f, j, p, a, o, h, c, k FROM unnest("
+           "%b::bigint[], %b::text[], %b::date[], %b::float8[], %b::float8[], %b::bool[], %b::text[], "
+           "%b::bytea[], %b::date[], %b::integer[], %b::float8[], %b::float8[], %b::integer[]) "
+           "AS x(u, s, d, r, m, f, j, p, a, o, h, c, k) " + conflict)
+    conn = connection.connection
+    raw = psycopg.Cursor(conn)
+    started = time.monotonic()
+    try:
+        if n > STORE_WORK_MEM_FROM_UNITS:
+            # The unnested rows (about 1 KB a unit) stay in memory instead
+            # of spilling to a temporary file past the default 4 MB.
+            raw.execute(f"SET LOCAL work_mem = '{STORE_WORK_MEM_MB}MB'")
+        bounds = list(range(0, n, STORE_STATEMENT_UNITS)) + [n]
+        with conn.pipeline() if len(bounds) > 2 else contextlib.nullcontext():
+            for first, last in zip(bounds[:-1], bounds[1:]):
+                u, *rest = _store_rows(run, packed, roles, first, last)
+                raw.execute(sql, [now, horizon, u, *rest])
+    finally:
+        raw.close()
+    if connection.queries_logged:  # a raw cursor: log it as Django's own cursors do
+        connection.queries_log.append({
+            "sql": f"INSERT INTO {UnitForecast._meta.db_table} ... unnest ({max(len(bounds) - 1, 1)} statements)",
+            "time": f"{time.monotonic() - started:.3f}"})
 
 
 @with_collector_paused

@@ -83,3 +83,45 @@ def test_the_reasons_are_written_as_json_writes_them(words):
     both databases read back the same list."""
     text = _json_words(words)
     assert text == json.dumps(words) and json.loads(text) == words
+
+
+def _stored_rows():
+    from scheduling.models import UnitForecast
+
+    rows = list(UnitForecast.objects.order_by("unit_id").values())
+    for row in rows:
+        row.pop("id"), row.pop("computed_at")
+        row["positions"] = bytes(row["positions"])
+    return rows
+
+
+@pytest.mark.django_db
+def test_a_store_sent_in_many_statements_writes_what_one_statement_writes(monkeypatch):
+    """On PostgreSQL a large store goes in pipelined statements of
+    STORE_STATEMENT_UNITS units; here three units a statement over seven
+    units, first over rows already there (the update), then into an empty
+    table (the insert).  The reference is the store in one statement."""
+    import datetime as dt
+
+    from scheduling import services
+    from scheduling.models import UnitForecast
+    from tests.base import build_fleet, make_unit
+
+    f = build_fleet()
+    for k in range(2, 8):
+        make_unit(f.gear_model, f.location, asset_tag=f"NMB-000{k}", serial=f"BA-80-200{k}",
+                  year_made=1976 + k, joined_on=dt.date(2016 + k // 2, k, 3))
+    first, later = dt.date(2026, 6, 1), dt.date(2027, 2, 1)
+    services.forecast_refresh(today=first)
+    in_one_first = _stored_rows()
+    services.forecast_refresh(today=later)
+    in_one_later = _stored_rows()
+    assert len(in_one_later) == 7 and in_one_later != in_one_first
+    assert all(isinstance(row["reasons"], list) for row in in_one_later)
+
+    monkeypatch.setattr(services, "STORE_STATEMENT_UNITS", 3)
+    services.forecast_refresh(today=first)  # over the rows of the later day
+    assert _stored_rows() == in_one_first
+    UnitForecast.objects.all().delete()
+    services.forecast_refresh(today=later)
+    assert _stored_rows() == in_one_later
