@@ -343,7 +343,7 @@ STORE_WORK_MEM_MB = 64
 #: PostgreSQL: a store of many units goes in statements of this many units,
 #: pipelined (psycopg's pipeline mode): the server writes one while this
 #: process makes the next, instead of one waiting for the other.
-STORE_STATEMENT_UNITS = 2500
+STORE_STATEMENT_UNITS = 1250
 
 _STORE_COLUMNS = ["unit_id", "computed_at", "status", "due_date", "risk", "horizon_days", "max_damage_ratio",
                   "storage_reform", "reasons", "positions", "act_by", "priority", "hire_risk", "score",
