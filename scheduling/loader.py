@@ -21,7 +21,7 @@ from . import physics
 from .forecast import ROLE_CODES, date_to_day
 from . import recent as R
 from .models import HistogramSnapshot, ModelUse, ThermalHistory
-from .parts import CAPACITOR_ROW, as_columns, is_pack, read_rows, unpack_many
+from .parts import CAPACITOR_ROW, as_columns, read_rows, rows_bytes
 from .thermal import location_monthly_temps
 from .sqlread import fetch_all
 
@@ -221,11 +221,13 @@ def use_arrays(units, histories, *, today, min_history_days, joined_day=None):
     joined_day = _days_from_text([u[5] for u in units]) if joined_day is None else joined_day
     since = dt.datetime.combine(today - dt.timedelta(days=365), dt.time(0), tzinfo=dt.timezone.utc)
     since_day = since.timestamp() / 86400.0
-    blobs, packed = [], np.zeros(n, dtype=bool)
+    blobs, raws, packed = [], [], np.zeros(n, dtype=bool)
     for k, u in enumerate(units):
         h = histories.get(u[0])
-        if h is not None and h[-1] == u[6] and R.is_pack(h[-2]):
-            blobs.append(bytes(h[-2]))
+        raw = R.rows_bytes(h[-2]) if h is not None and h[-1] == u[6] else None
+        if raw is not None:
+            blobs.append(h[-2])
+            raws.append(raw)
             packed[k] = True
     use_p, use_o, use_a, use_n = (np.full(n, np.nan) for _ in range(4))
     if blobs:
@@ -233,8 +235,9 @@ def use_arrays(units, histories, *, today, min_history_days, joined_day=None):
         rows = np.flatnonzero(packed)
         packed[rows[~complete]] = False
         blobs = [b for b, ok in zip(blobs, complete) if ok]
+        raws = [b for b, ok in zip(raws, complete) if ok]
         rows = rows[complete]
-        use_p[rows], use_o[rows], use_a[rows], use_n[rows] = R.window_sums(blobs, since_day)
+        use_p[rows], use_o[rows], use_a[rows], use_n[rows] = R.window_sums(blobs, since_day, raws=raws)
         have = rows
     else:
         have = np.zeros(0, dtype=np.int64)
@@ -258,14 +261,15 @@ def use_arrays(units, histories, *, today, min_history_days, joined_day=None):
 def _fitted_parts(units, histories, unit_ids_arr):
     """The capacitor rows of ``units`` as columns, from the packs of units
     whose pack is current, the rows of the rest (one query)."""
-    blobs, missing = [], []
+    raws, missing = [], []
     for u in units:
         h = histories.get(u[0])
-        if h is not None and h[-1] == u[6] and is_pack(h[-3]):
-            blobs.append(bytes(h[-3]))
+        raw = rows_bytes(h[-3]) if h is not None and h[-1] == u[6] else None
+        if raw is not None:
+            raws.append(raw)
         else:
             missing.append(u[0])
-    arr = unpack_many(blobs) if blobs else np.zeros(0, dtype=CAPACITOR_ROW)
+    arr = np.frombuffer(b"".join(raws), dtype=CAPACITOR_ROW) if raws else np.zeros(0, dtype=CAPACITOR_ROW)
     if missing:
         rows = read_rows(None if len(missing) > 30000 else missing)
         arr = np.concatenate([arr, rows]) if arr.size else rows

@@ -12,12 +12,15 @@ table instead.
 
 import struct
 
+import lz4.block
 import numpy as np
 
 #: One closed hire: check-out and check-in as float days since 1970-01-01
 #: (UTC), powered hours and venue ambient [degC] (NULL: NaN).
 HIRE_ROW = np.dtype([("out_day", "<f8"), ("in_day", "<f8"), ("powered_h", "<f8"), ("ambient_c", "<f8")])
-TAG = b"RH01"
+#: A pack: this tag, the day it is complete from (float64), then its hires
+#: compressed (an lz4 block with its size).  Another tag reads as no pack.
+TAG = b"RH02"
 #: Hires kept: those that closed within this many days of packing (a year and a margin).
 KEEP_DAYS = 400
 _HEAD = len(TAG) + 8  # tag, then the first day (float64) from which the pack is complete
@@ -32,33 +35,57 @@ def hire_row(out_at, in_at, powered_h, ambient_c):
 
 def pack(rows, complete_from_day):
     """Bytes of one unit's hires (HIRE_ROW array) complete from ``complete_from_day``."""
-    return TAG + np.float64(complete_from_day).tobytes() + np.ascontiguousarray(rows, dtype=HIRE_ROW).tobytes()
+    return (TAG + np.float64(complete_from_day).tobytes()
+            + lz4.block.compress(np.ascontiguousarray(rows, dtype=HIRE_ROW), store_size=True))
+
+
+def rows_bytes(blob):
+    """The hires' bytes of a pack of the current layout; None for anything
+    else (no pack, another layout, a damaged one)."""
+    if not blob or len(blob) < _HEAD or bytes(blob[:len(TAG)]) != TAG:
+        return None
+    try:
+        raw = lz4.block.decompress(memoryview(blob)[_HEAD:])
+    except lz4.block.LZ4BlockError:
+        return None
+    return raw if len(raw) % HIRE_ROW.itemsize == 0 else None
 
 
 def is_pack(blob):
-    blob = bytes(blob or b"")
-    return blob[:len(TAG)] == TAG and len(blob) >= _HEAD and (len(blob) - _HEAD) % HIRE_ROW.itemsize == 0
+    return rows_bytes(blob) is not None
 
 
 def rows_of(blob):
     """The hires of one pack, as a HIRE_ROW array (a copy)."""
-    return np.frombuffer(bytes(blob)[_HEAD:], dtype=HIRE_ROW).copy()
+    raw = rows_bytes(blob)
+    if raw is None:
+        raise ValueError("not a pack of recent hires of the current layout")
+    return np.frombuffer(raw, dtype=HIRE_ROW).copy()
 
 
 def complete_from_many(blobs):
-    """The day from which each pack is complete (float days; inf: not a pack)."""
+    """The day from which each pack is complete (float days; inf: not one).
+    Reads each pack's header only: ``blobs`` are packs already checked
+    (``rows_bytes``) or the day is all that is wanted."""
     head = struct.Struct("<d")
-    return np.array([head.unpack_from(b, len(TAG))[0] if is_pack(b) else np.inf for b in blobs], dtype=float)
+    return np.array([head.unpack_from(b, len(TAG))[0] if len(b) >= _HEAD and bytes(b[:len(TAG)]) == TAG else np.inf
+                     for b in blobs], dtype=float)
 
 
-def window_sums(blobs, since_day):
+def window_sums(blobs, since_day, *, raws=None):
     """Per pack (unit), over the hires that closed at or after ``since_day``
     (float days since 1970-01-01): powered hours, hours out, the
     powered-hours-weighted venue ambient [degC] (NaN: none) and the number
-    of hires.  The same figures ``loader.recent_use`` groups in SQL."""
+    of hires.  The same figures ``loader.recent_use`` groups in SQL.
+    ``raws``: the packs' hires as ``rows_bytes`` gave them, if the caller
+    has them (not unpacked again)."""
     n = len(blobs)
-    counts = np.fromiter(((len(b) - _HEAD) // HIRE_ROW.itemsize for b in blobs), dtype=np.int64, count=n)
-    rows = np.frombuffer(b"".join(memoryview(b)[_HEAD:] for b in blobs), dtype=HIRE_ROW)
+    if raws is None:
+        raws = [rows_bytes(b) for b in blobs]
+        if any(raw is None for raw in raws):
+            raise ValueError("not a pack of recent hires of the current layout")
+    counts = np.fromiter((len(raw) // HIRE_ROW.itemsize for raw in raws), dtype=np.int64, count=n)
+    rows = np.frombuffer(b"".join(raws), dtype=HIRE_ROW)
     unit = np.repeat(np.arange(n), counts)
     take = rows["in_day"] >= since_day
     rows, unit = rows[take], unit[take]

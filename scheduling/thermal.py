@@ -526,7 +526,7 @@ def parts_verify(*, unit_ids=None, repair=False):
         chunk = ids[start:start + REPACK_CHUNK]
         rows = P.packs_of(P.read_rows(chunk), chunk)
         for unit_id, blob in ThermalHistory.objects.filter(unit_id__in=chunk).values_list("unit_id", "parts"):
-            if bytes(blob or b"") != rows[unit_id]:
+            if P.rows_bytes(blob) != P.rows_bytes(rows[unit_id]):
                 wrong.append(unit_id)
     if repair and wrong:
         thermal_repack(unit_ids=wrong)

@@ -62,8 +62,7 @@ def test_a_check_in_packs_the_hire_it_closes(fleet):
     workflows.rental_check_out(unit_id=fleet.other.pk, job_ref="J-1", out_at=out, override_reason="test hire")
     workflows.rental_check_in(unit_id=fleet.other.pk, in_at=out + dt.timedelta(days=2), venue_ambient_c=31.0,
                               powered_hours=20.0)
-    hires = np.frombuffer(bytes(ThermalHistory.objects.get(unit=fleet.other).recent), dtype=R.HIRE_ROW,
-                          offset=len(R.TAG) + 8)
+    hires = R.rows_of(ThermalHistory.objects.get(unit=fleet.other).recent)
     assert hires.size == 1 and (hires["powered_h"][0], hires["ambient_c"][0]) == (20.0, 31.0)
     assert hires["in_day"][0] - hires["out_day"][0] == pytest.approx(2.0)
 
