@@ -22,7 +22,7 @@ from .forecast import ROLE_CODES, date_to_day
 from . import recent as R
 from .models import HistogramSnapshot, ModelUse, ThermalHistory
 from .parts import CAPACITOR_ROW, as_columns, read_rows, rows_bytes
-from .thermal import location_monthly_temps
+from .thermal import location_monthly_temps, thermal_sync
 from .sqlread import fetch_all
 
 
@@ -199,8 +199,11 @@ def unit_rows(*, unit_ids=None, id_range=None):
     )
 
 
-def history_rows(*, unit_ids=None, id_range=None, columns=("powered", "unpowered", "accounted_until",
-                                                           "last_powered_at", "parts", "recent", "parts_version")):
+HISTORY_COLUMNS = ("powered", "unpowered", "accounted_until", "last_powered_at", "records_version", "parts", "recent",
+                   "parts_version")
+
+
+def history_rows(*, unit_ids=None, id_range=None, columns=HISTORY_COLUMNS):
     """{unit id: row} of the thermal histories (the columns asked for, in order)."""
     qn = connection.ops.quote_name
     where, params = _unit_filter(unit_ids, id_range, "unit_id")
@@ -303,11 +306,24 @@ def history_row_of(history):
         return None if moment is None else moment.astimezone(dt.timezone.utc).strftime("%Y-%m-%d %H:%M:%S")
 
     return (bytes(history.powered), bytes(history.unpowered), text(history.accounted_until),
-            text(history.last_powered_at), bytes(history.parts), bytes(history.recent), history.parts_version)
+            text(history.last_powered_at), history.records_version, bytes(history.parts), bytes(history.recent),
+            history.parts_version)
+
+
+def behind(units, histories):
+    """Ids of the units (rows of ``unit_rows``) whose thermal history is
+    missing or older than their records, or whose packs are: those
+    ``thermal.thermal_sync`` brings up to date."""
+    out = []
+    for u in units:
+        h = histories.get(u[0])
+        if h is None or h[4] != u[6] or h[-1] != u[6]:
+            out.append(u[0])
+    return out
 
 
 def load_fleet(*, unit_ids=None, today, min_history_days=180, id_range=None, model_means="stored", use=None,
-               known=None):
+               known=None, sync=False):
     """Everything the engine needs, as arrays (see FleetArrays).
 
     ``unit_ids`` (a list) or ``id_range`` (first, last) choose the units;
@@ -319,7 +335,10 @@ def load_fleet(*, unit_ids=None, today, min_history_days=180, id_range=None, mod
     four arrays), taken when the units loaded are the same.  ``known``: what
     the caller's transaction just wrote or read for ``unit_ids``
     (``thermal.CheckInSync``), not read again: its history, when it is the
-    only unit, and its home's monthly temperatures."""
+    only unit, and its home's monthly temperatures.  ``sync``: bring the
+    histories of any of the units that are behind their records up to date
+    first (``thermal.thermal_sync``), as told by the rows read here: no
+    query of its own when none is behind."""
     units = unit_rows(unit_ids=unit_ids, id_range=id_range)
     ids = [u[0] for u in units]
     filter_ids = None if unit_ids is None and id_range is None else ids
@@ -341,6 +360,10 @@ def load_fleet(*, unit_ids=None, today, min_history_days=180, id_range=None, mod
         histories = {known.history.unit_id: history_row_of(known.history)}
     else:
         histories = history_rows(unit_ids=unit_ids, id_range=id_range)
+        late = behind(units, histories) if sync else None
+        if late:
+            thermal_sync(unit_ids=late)
+            histories = history_rows(unit_ids=unit_ids, id_range=id_range)
     rows = [(k, histories[uid]) for k, uid in enumerate(ids) if uid in histories]
     if rows:
         k = np.array([r[0] for r in rows], dtype=np.int64)

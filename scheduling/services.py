@@ -8,16 +8,12 @@ it twice leaves the same rows.  A unit whose figures the engine cannot use
 reason in words, and every other unit is forecast as usual.
 """
 
-import contextlib
 import datetime as dt
-import json
 import logging
 import time
-from json.encoder import encode_basestring_ascii
 
-import lz4.block
 import numpy as np
-from django.db import DEFAULT_DB_ALIAS, connection, connections, transaction
+from django.db import connection, transaction
 from django.utils import timezone
 
 from fleet.models import Unit
@@ -29,30 +25,14 @@ from .gcpause import with_collector_paused
 from .loader import active_policy, load_fleet
 from .forecast import model_use_means, model_use_sums
 from .models import ModelUse, ThermalHistory, UnitForecast
-from .thermal import thermal_sync
 from .thresholds import ROLE_NAMES
-from .triage import ACTION_NAMES, LEAVE
+from .triage import ACTION_NAMES
+# The stored rows' format and the store, used here and, through this module,
+# by the pages and reports (services.pack_positions and the rest).
+from .store import (OLD_POSITION_LAYOUT, POSITION_DTYPE, POSITION_LAYOUT, _day_dates, _json_words,  # noqa: F401
+                    _store, _store_unforecastable, action_role_masks, pack_positions, stored_positions)
 
-#: Layout of the per-position results stored in UnitForecast.positions.
-#: Single precision keeps six significant digits, more than the model's
-#: inputs carry, and halves what a nightly refresh writes.
-#: Each unit's blob starts with this tag; change it with the layout, so a blob
-#: written with another layout reads as empty until the next refresh.  After
-#: the tag: the records, LZ4-compressed (a block with its size in front).  A
-#: nightly refresh of 10,000 units then writes 8 MB of positions instead of
-#: 21 MB, and each blob (about 0.8 KB) stays inside its row on PostgreSQL
-#: instead of going out to a TOAST table; decompressing all of them takes
-#: about 20 ms.  ``OLD_POSITION_LAYOUT`` (the same records, uncompressed) is
-#: still read, so nothing reads as empty after an upgrade.
-POSITION_LAYOUT = b"RP05"
-OLD_POSITION_LAYOUT = b"RP04"
 log = logging.getLogger(__name__)
-POSITION_DTYPE = np.dtype([
-    ("capacitor_id", "<i8"), ("damage", "<f4"), ("esr_ohm", "<f4"), ("capacitance_f", "<f4"),
-    ("threshold", "<f4"), ("reaches_day", "<f4"), ("action", "i1"), ("why", "i1"), ("rate_per_day", "<f4"),
-    # bench readings: the date of the reading the damage comes from (NaN: none), the rate factor
-    ("measured_day", "<f4"), ("rate_factor", "<f4"),
-])
 
 
 def _options_from(law=None, activation_energy_ev=None, esr_feedback=False, weibull_shape=None, frailty_sigma=None):
@@ -146,7 +126,7 @@ class ForecastRun:
 
 def forecast_compute(*, unit_ids=None, today=None, law=None, activation_energy_ev=None, esr_feedback=False,
                      weibull_shape=None, frailty_sigma=None, policy=None, id_range=None, model_means="stored",
-                     use=None, known=None):
+                     use=None, known=None, sync=False):
     """Compute forecasts without storing them; returns a ForecastRun.
 
     The whole fleet (no ``unit_ids``, no ``id_range``) fills units without
@@ -158,7 +138,7 @@ def forecast_compute(*, unit_ids=None, today=None, law=None, activation_energy_e
     policy_row = policy or active_policy()
     started = time.perf_counter()
     fleet = load_fleet(unit_ids=unit_ids, today=today, min_history_days=options.min_history_days,
-                       id_range=id_range, model_means=model_means, use=use, known=known)
+                       id_range=id_range, model_means=model_means, use=use, known=known, sync=sync)
     sums = None
     if unit_ids is None and id_range is None:
         sums = fleet_use_sums(fleet)
@@ -311,169 +291,20 @@ def _queue_ranking():
         log.exception("Could not queue the renumbering of priorities; the nightly refresh will do it.")
 
 
-def _day_dates(days):
-    """Float days since 1970-01-01 (NaN: none) to a list of datetime.date or None."""
-    days = np.asarray(days, dtype=float)
-    out = np.floor(np.nan_to_num(days)).astype("int64").astype("datetime64[D]").tolist()
-    return [None if missing else d for d, missing in zip(out, np.isnan(days).tolist())]
-
-
-def _json_words(words):
-    """``json.dumps`` of a list of strings, as it writes it (ASCII, ", "
-    between items), about three times faster: no encoder made per call."""
-    return "[" + ", ".join(map(encode_basestring_ascii, words)) + "]"
-
-
-def action_role_masks(run):
-    """Per unit: one bit per role code (``1 << ROLE_CODES[role]``) of the
-    positions whose action is replace or measure, for filtering by role."""
-    fa, r = run.fleet, run.result
-    masks = np.zeros(fa.n_units, dtype=np.int64)
-    if fa.n_caps:
-        act = np.flatnonzero(r.action != LEAVE)
-        bits = np.left_shift(1, fa.pos_role[fa.position_index[act]].astype(np.int64))
-        np.bitwise_or.at(masks, fa.unit_index[act], bits)
-    return masks
-
-
-#: A store of more units than this raises PostgreSQL's work_mem for its
-#: transaction to STORE_WORK_MEM_MB (enough for 50,000 units at once).
-STORE_WORK_MEM_FROM_UNITS = 2000
-STORE_WORK_MEM_MB = 64
-#: PostgreSQL: a store of many units goes in statements of this many units,
-#: pipelined (psycopg's pipeline mode): the server writes one while this
-#: process makes the next, instead of one waiting for the other.
-STORE_STATEMENT_UNITS = 1250
-
-_STORE_COLUMNS = ["unit_id", "computed_at", "status", "due_date", "risk", "horizon_days", "max_damage_ratio",
-                  "storage_reform", "reasons", "positions", "act_by", "priority", "hire_risk", "score",
-                  "action_roles"]
-
-
-def _store_sql():
-    """The upsert of forecast rows: its INSERT head and ON CONFLICT tail."""
-    qn = connection.ops.quote_name
-    table = qn(UnitForecast._meta.db_table)
-    updates = ", ".join(f"{qn(c)} = excluded.{qn(c)}" for c in _STORE_COLUMNS[1:])
-    return (f"INSERT INTO {table} ({', '.join(qn(c) for c in _STORE_COLUMNS)}) ",
-            f"ON CONFLICT ({qn('unit_id')}) DO UPDATE SET {updates}")
-
-
-def _store_rows(run, packed, roles, first, last):
-    """The column values of units ``first`` to ``last`` - 1 of ``run``, in
-    the order of _STORE_COLUMNS less computed_at and horizon_days (the same
-    for every row); ``packed``: every position's record, ``roles``: every
-    unit's ``action_role_masks``."""
-    fa, r = run.fleet, run.result
-    sl = slice(first, last)
-    # Each unit's records are a slice of the positions, packed where they lie.
-    positions = [pack_positions(packed[a:b])
-                 for a, b in zip(run._starts[sl].tolist(), run._ends[sl].tolist())]
-    return [
-        fa.unit_id[sl].tolist(), list(r.status[sl]), _day_dates(r.due_day[sl]), r.risk[sl].astype(float).tolist(),
-        r.max_damage_ratio[sl].astype(float).tolist(), r.storage_reform[sl].astype(bool).tolist(),
-        [_json_words(words) for words in r.reasons[sl]], positions, _day_dates(r.act_by_day[sl]),
-        [p or None for p in r.priority[sl].tolist()], r.hire_risk[sl].astype(float).tolist(),
-        r.score[sl].astype(float).tolist(), roles[sl].tolist(),
-    ]
-
-
-def _store(run):
-    """Upsert one UnitForecast row per unit.
-
-    PostgreSQL: ``INSERT ... SELECT FROM unnest(arrays) ON CONFLICT``, the
-    arrays in binary; up to STORE_STATEMENT_UNITS units a statement, the
-    statements pipelined.  SQLite: one prepared ``INSERT ... ON CONFLICT``
-    run over the rows (``executemany``, in-process, no round trips).
-    """
-    fa, r = run.fleet, run.result
-    now = timezone.now()
-    # All positions in unit order in one record array; each unit's bytes are a slice.
-    order = run._order  # capacitor rows grouped by unit, units in order
-    # The loader's rows come grouped by unit already: then no gather, a copy.
-    grouped = order.size == 0 or bool(np.all(order[1:] > order[:-1]))
-
-    def rows(a):
-        return a if grouped else a[order]
-
-    packed = np.empty(order.size, dtype=POSITION_DTYPE)
-    packed["capacitor_id"] = rows(fa.cap_id)
-    for name in ("damage", "esr_ohm", "capacitance_f", "threshold", "reaches_day", "action", "why",
-                 "rate_per_day"):
-        packed[name] = rows(getattr(r, name))
-    packed["measured_day"] = rows(r.readings.measured_day)
-    packed["rate_factor"] = rows(r.readings.rate_factor)
-    n = fa.n_units
-    roles = action_role_masks(run)
-    horizon = int(run.policy.horizon_days)
-    insert, conflict = _store_sql()
-    with transaction.atomic(savepoint=False), connection.cursor() as cursor:
-        if connection.vendor == "postgresql":
-            _store_postgresql(run, packed, roles, now, horizon, insert, conflict)
-        else:
-            conn = connections[DEFAULT_DB_ALIAS]
-            computed_at = UnitForecast._meta.get_field("computed_at").get_db_prep_save(now, conn)
-            u, s, due, risk, ratio, reform, reasons, positions, act_by, priority, hire_risk, score, masks = (
-                _store_rows(run, packed, roles, 0, n))
-            due_text = [None if d is None else d.isoformat() for d in due]
-            act_text = [None if d is None else d.isoformat() for d in act_by]
-            cursor.executemany(
-                insert + f"VALUES ({', '.join(['%s'] * len(_STORE_COLUMNS))}) " + conflict,
-                [(uid, computed_at, st, d, rk, horizon, m, f, j, p, a, o, h, c, k)
-                 for uid, st, d, rk, m, f, j, p, a, o, h, c, k
-                 in zip(u, s, due_text, risk, ratio, reform, reasons, positions, act_text, priority,
-                        hire_risk, score, masks)],
-            )
-    return n
-
-
-def _store_postgresql(run, packed, roles, now, horizon, insert, conflict):
-    """The PostgreSQL half of ``_store``: server-side binding with binary
-    parameters (the arrays travel as they are, not quoted into the SQL
-    text), a statement per STORE_STATEMENT_UNITS units, pipelined."""
-    import psycopg
-
-    n = run.fleet.n_units
-    sql = (insert + "SELECT u, %b, s, d, r, %b::integer, m, f, j, p, a, o, h, c, k FROM unnest("
-           "%b::bigint[], %b::text[], %b::date[], %b::float8[], %b::float8[], %b::bool[], %b::text[], "
-           "%b::bytea[], %b::date[], %b::integer[], %b::float8[], %b::float8[], %b::integer[]) "
-           "AS x(u, s, d, r, m, f, j, p, a, o, h, c, k) " + conflict)
-    conn = connection.connection
-    raw = psycopg.Cursor(conn)
-    started = time.monotonic()
-    try:
-        if n > STORE_WORK_MEM_FROM_UNITS:
-            # The unnested rows (about 1 KB a unit) stay in memory instead
-            # of spilling to a temporary file past the default 4 MB.
-            raw.execute(f"SET LOCAL work_mem = '{STORE_WORK_MEM_MB}MB'")
-        bounds = list(range(0, n, STORE_STATEMENT_UNITS)) + [n]
-        with conn.pipeline() if len(bounds) > 2 else contextlib.nullcontext():
-            for first, last in zip(bounds[:-1], bounds[1:]):
-                u, *rest = _store_rows(run, packed, roles, first, last)
-                raw.execute(sql, [now, horizon, u, *rest])
-    finally:
-        raw.close()
-    if connection.queries_logged:  # a raw cursor: log it as Django's own cursors do
-        connection.queries_log.append({
-            "sql": f"INSERT INTO {UnitForecast._meta.db_table} ... unnest ({max(len(bounds) - 1, 1)} statements)",
-            "time": f"{time.monotonic() - started:.3f}"})
-
-
 @with_collector_paused
 def forecast_refresh(*, unit_ids=None, today=None, sync=True, **options):
     """Recompute and store the forecast of the given units (all when None).
 
     First (unless ``sync=False``: the caller just did) brings the thermal
     history and packs of any of them whose records changed up to date
-    (``thermal.thermal_sync``).  Idempotent: the stored row of each unit is
+    (``thermal.thermal_sync``), as the rows the load reads anyway tell: no
+    query of its own when none changed.  Idempotent: the stored row of each unit is
     overwritten, and the priorities of the whole fleet renumbered
     (``priorities_rank``).  Retired units are not forecast and their old
     results are removed.  The whole fleet also keeps its gear models' means
     for later forecasts of a few units.  Returns the ForecastRun.
     """
-    if sync:
-        thermal_sync(unit_ids=unit_ids)
-    run = forecast_compute(unit_ids=unit_ids, today=today, **options)
+    run = forecast_compute(unit_ids=unit_ids, today=today, sync=sync, **options)
     # No savepoint: inside a caller's transaction (check-in) a failure here
     # fails the whole of it, and it saves two round trips per refresh.
     started = time.perf_counter()
@@ -505,48 +336,6 @@ def forecast_refresh(*, unit_ids=None, today=None, sync=True, **options):
     log.info("Forecast %d units as of %s; %d could not be forecast.", run.fleet.n_units, run.today,
              len(run.unforecastable))
     return run
-
-
-def _store_unforecastable(run):
-    """Upsert the rows of the units that could not be forecast: the status
-    "cannot forecast", the reasons, and no figures (one statement)."""
-    if not run.unforecastable:
-        return
-    now = timezone.now()
-    rows = [UnitForecast(unit_id=u.unit_id, computed_at=now, status=UnitForecast.Status.INVALID, due_date=None,
-                         risk=None, horizon_days=int(run.policy.horizon_days), max_damage_ratio=None,
-                         storage_reform=False, reasons=list(u.reasons), positions=b"")
-            for u in run.unforecastable]
-    fields = [f.name for f in UnitForecast._meta.concrete_fields if f.name not in ("id", "unit")]
-    UnitForecast.objects.bulk_create(rows, update_conflicts=True, unique_fields=["unit"], update_fields=fields)
-
-
-def pack_positions(records):
-    """Per-position results (a POSITION_DTYPE array) as stored in
-    UnitForecast.positions: the tag, then the records compressed."""
-    if not (isinstance(records, np.ndarray) and records.dtype == POSITION_DTYPE and records.flags.c_contiguous):
-        records = np.ascontiguousarray(records, dtype=POSITION_DTYPE)
-    return POSITION_LAYOUT + lz4.block.compress(records)  # read in place: no copy of the records
-
-
-def stored_positions(forecast):
-    """The per-position results of a stored UnitForecast as a structured array."""
-    blob = bytes(forecast.positions or b"")
-    tag = len(POSITION_LAYOUT)
-    if blob[:tag] == POSITION_LAYOUT:
-        try:
-            blob = lz4.block.decompress(memoryview(blob)[tag:])
-        except lz4.block.LZ4BlockError:
-            blob = b"-"  # damaged: read as empty below
-        offset = 0
-    elif blob[:tag] == OLD_POSITION_LAYOUT:
-        offset = tag
-    else:
-        blob, offset = b"-", 0
-    if (len(blob) - offset) % POSITION_DTYPE.itemsize:
-        # Written with another layout, or damaged: show nothing until the next refresh rewrites it.
-        return np.zeros(0, dtype=POSITION_DTYPE)
-    return np.frombuffer(blob, dtype=POSITION_DTYPE, offset=offset)
 
 
 #: The life chart: how far ahead of today it looks [years], and how many of a

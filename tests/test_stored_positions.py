@@ -119,9 +119,79 @@ def test_a_store_sent_in_many_statements_writes_what_one_statement_writes(monkey
     assert len(in_one_later) == 7 and in_one_later != in_one_first
     assert all(isinstance(row["reasons"], list) for row in in_one_later)
 
-    monkeypatch.setattr(services, "STORE_STATEMENT_UNITS", 3)
+    from scheduling import store
+
+    monkeypatch.setattr(store, "STORE_STATEMENT_UNITS", 3)
     services.forecast_refresh(today=first)  # over the rows of the later day
     assert _stored_rows() == in_one_first
     UnitForecast.objects.all().delete()
     services.forecast_refresh(today=later)
     assert _stored_rows() == in_one_later
+
+
+@pytest.mark.django_db
+def test_each_stored_row_holds_the_runs_own_values():
+    """Whatever form the store sends them in (on PostgreSQL, binary arrays
+    built by numpy, scheduling/pgarrays.py), each stored row holds the run's
+    values exactly: dates (none as empty), priority (none as empty), the
+    figures to the last bit, the reasons.  The reference is the run's arrays."""
+    import datetime as dt
+
+    from scheduling import services, store
+    from scheduling.days import day_to_date
+    from scheduling.models import UnitForecast
+    from tests.base import build_fleet, make_unit
+
+    f = build_fleet()
+    for k, year in enumerate((1979, 2019, 1985), start=2):
+        make_unit(f.gear_model, f.location, asset_tag=f"NMB-000{k}", serial=f"BA-80-200{k}", year_made=year,
+                  joined_on=dt.date(max(year, 2015), 3, 1))
+    # and a young unit of long-lived parts, which needs nothing yet
+    from fleet.models import Position
+    from tests.base import make_gear_model
+
+    sturdy = make_gear_model(model_name="Larkspur 2", year_from=2024, year_to=2026)
+    Position.objects.filter(gear_model=sturdy).update(rated_life_h=20000, rated_temp_c=105)
+    Position.objects.filter(gear_model=sturdy, designator="C12").update(capacitance_uf=2.2)  # corner 7 Hz
+    make_unit(sturdy, f.location, asset_tag="NMB-0009", serial="LK-25-0009", year_made=2025,
+              joined_on=dt.date(2025, 9, 1))
+    run = services.forecast_refresh(today=dt.date(2026, 6, 1))
+    fa, r = run.fleet, run.result
+    stored = {row.unit_id: row for row in UnitForecast.objects.all()}
+    roles = services.action_role_masks(run)
+
+    def day(x):
+        return None if np.isnan(x) else day_to_date(x)
+
+    def same(a, b):
+        return (a is None and np.isnan(b)) or np.float64(a).tobytes() == np.float64(b).tobytes()
+
+    for u, unit_id in enumerate(fa.unit_id.tolist()):
+        row = stored[unit_id]
+        assert (row.status, row.due_date, row.act_by) == (r.status[u], day(r.due_day[u]), day(r.act_by_day[u]))
+        assert row.priority == (int(r.priority[u]) or None)
+        assert row.storage_reform is bool(r.storage_reform[u]) and row.action_roles == roles[u]
+        for name, values in (("risk", r.risk), ("max_damage_ratio", r.max_damage_ratio),
+                             ("hire_risk", r.hire_risk), ("score", r.score)):
+            assert same(getattr(row, name), values[u]), name
+        assert row.reasons == list(r.reasons[u])
+        assert stored_positions(row).tobytes() == store._position_records(run)[run._starts[u]:run._ends[u]].tobytes()
+    # both kinds of row are here: with and without a due date, with and without a priority
+    # both kinds of row are here: with a priority and without (a unit that needs nothing yet)
+    assert {row.priority is None for row in stored.values()} == {True, False}
+    assert {row.status for row in stored.values()} == {"ok", "overdue"}
+
+
+def test_the_postgresql_stores_whole_days_are_the_dates_of_the_other_store():
+    """Dates go to PostgreSQL as whole days since 1970 (none: NO_DAY) and to
+    SQLite as dates: the same day for every figure, none for NaN.  The
+    reference is Python's own calendar (date + timedelta)."""
+    import datetime as dt
+
+    from scheduling.store import NO_DAY, _day_dates, _day_numbers
+
+    days = np.array([0.0, 0.999, -0.5, 20000.25, 29599.9999, np.nan, -3652.0, 1e6])
+    numbers = _day_numbers(days).tolist()
+    for n, date in zip(numbers, _day_dates(days)):
+        assert (None if n == NO_DAY else dt.date(1970, 1, 1) + dt.timedelta(days=n)) == date
+    assert numbers[5] == NO_DAY and numbers[2] == -1

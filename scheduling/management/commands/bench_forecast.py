@@ -181,7 +181,7 @@ class Command(BaseCommand):
             if med >= ONE_UNIT_BUDGET_MS:
                 stage = {k: statistics.median(p[k] for p in parts) * 1000 for k in ("load", "compute", "store")}
                 w(f"  where the time goes: load {stage['load']:.1f} ms, compute {stage['compute']:.1f} ms, "
-                  f"store {stage['store']:.1f} ms (medians), the sync's check and the rest "
+                  f"store {stage['store']:.1f} ms (medians), the rest (the histories' check is in the load) "
                   f"{med - sum(stage.values()):.1f} ms")
             if state:
                 w(f"  the forecast table {label}: {state}")
