@@ -278,6 +278,9 @@ def _fitted_parts(units, histories, unit_ids_arr):
         arr = np.concatenate([arr, rows]) if arr.size else rows
         arr = arr[np.lexsort((arr["id"], arr["unit_id"]))]
     caps = as_columns(arr)
+    if not missing:  # every unit from its own pack, in unit order: its rows are its pack's
+        counts = np.fromiter((len(raw) // CAPACITOR_ROW.itemsize for raw in raws), dtype=np.int64, count=len(raws))
+        return caps, np.repeat(np.arange(len(raws), dtype=np.int64), counts)
     cap_unit_index = _index_of(unit_ids_arr, caps["unit_id"])
     keep = cap_unit_index >= 0  # capacitors of retired units are left out
     if not keep.all():
