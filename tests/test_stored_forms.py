@@ -22,10 +22,7 @@ from scheduling.loader import load_fleet
 from scheduling.models import ThermalHistory
 from scheduling.services import forecast_refresh
 from scheduling.thermal import parts_verify
-from tests.base import build_fleet, make_unit
-
-TODAY = dt.date(2026, 6, 1)
-
+from tests.test_packed_parts import TODAY, fleet  # noqa: F401 - fleet: the fixture
 
 def _histogram(seed):
     """A unit's histogram as the engine makes them: hours in a span of bins, zeros elsewhere."""
@@ -72,16 +69,13 @@ def test_a_damaged_histogram_is_an_error_not_figures(damage):
 
 
 @pytest.fixture
-def fleet(db):
-    f = build_fleet()
-    f.other = make_unit(f.gear_model, f.location, asset_tag="NMB-0002", serial="BA-80-2002",
-                        joined_on=dt.date(2024, 1, 10))
-    forecast_refresh(today=TODAY)
+def hired(fleet):
+    """test_packed_parts' two units, the first back from a hire."""
     out = timezone.now() - dt.timedelta(days=40)
-    workflows.rental_check_out(unit_id=f.unit.pk, job_ref="J-2", out_at=out, override_reason="test hire")
-    workflows.rental_check_in(unit_id=f.unit.pk, in_at=out + dt.timedelta(days=1), venue_ambient_c=28.0,
+    workflows.rental_check_out(unit_id=fleet.unit.pk, job_ref="J-2", out_at=out, override_reason="test hire")
+    workflows.rental_check_in(unit_id=fleet.unit.pk, in_at=out + dt.timedelta(days=1), venue_ambient_c=28.0,
                               powered_hours=9.0)
-    return f
+    return fleet
 
 
 ARRAYS = ("cap_id", "unit_index", "position_index", "capacitance_f", "rated_life_h", "esr0_ohm", "installed_day",
@@ -94,9 +88,9 @@ def _assert_same_arrays(a, b):
         np.testing.assert_array_equal(getattr(a, name), getattr(b, name), err_msg=name)
 
 
-def test_the_stored_packs_are_compressed_and_read_back_as_the_rows(fleet):
-    h = ThermalHistory.objects.get(unit=fleet.unit)
-    rows = P.read_rows([fleet.unit.pk])
+def test_the_stored_packs_are_compressed_and_read_back_as_the_rows(hired):
+    h = ThermalHistory.objects.get(unit=hired.unit)
+    rows = P.read_rows([hired.unit.pk])
     assert bytes(h.parts)[:len(P.PACK_TAG)] == P.PACK_TAG and len(h.parts) < rows.nbytes  # three parts here
     assert P.rows_bytes(h.parts) == rows.tobytes()
     hires = R.rows_of(h.recent)
@@ -105,26 +99,26 @@ def test_the_stored_packs_are_compressed_and_read_back_as_the_rows(fleet):
 
 @pytest.mark.parametrize("which", ["parts", "recent"])
 @pytest.mark.parametrize("form", ["cut short", "the layout before compression"])
-def test_a_cut_or_older_pack_reads_as_missing_and_the_rows_are_read(fleet, which, form):
+def test_a_cut_or_older_pack_reads_as_missing_and_the_rows_are_read(hired, which, form):
     today = timezone.localdate()
     good = load_fleet(today=today)
-    h = ThermalHistory.objects.get(unit=fleet.unit)
+    h = ThermalHistory.objects.get(unit=hired.unit)
     blob = bytes(getattr(h, which))
     if form == "cut short":  # (an lz4 block has no checksum: a cut one is what it can tell)
         blob = blob[:-9]
     elif which == "parts":
-        blob = b"CP01" + P.read_rows([fleet.unit.pk]).tobytes()
+        blob = b"CP01" + P.read_rows([hired.unit.pk]).tobytes()
     else:
         blob = b"RH01" + blob[len(R.TAG):len(R.TAG) + 8] + R.rows_of(h.recent).tobytes()
     ThermalHistory.objects.filter(pk=h.pk).update(**{which: blob})
     assert not (P if which == "parts" else R).is_pack(blob)
     _assert_same_arrays(load_fleet(today=today), good)
     if which == "parts":
-        assert parts_verify() == [fleet.unit.pk]
-        assert parts_verify(repair=True) == [fleet.unit.pk] and parts_verify() == []
+        assert parts_verify() == [hired.unit.pk]
+        assert parts_verify(repair=True) == [hired.unit.pk] and parts_verify() == []
 
 
-def test_the_migration_to_compressed_forms_marks_every_pack_for_packing_again(fleet):
+def test_the_migration_to_compressed_forms_marks_every_pack_for_packing_again(hired):
     from importlib import import_module
 
     from django.apps import apps
