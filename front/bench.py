@@ -23,6 +23,7 @@ from scheduling.replacement import recommend
 from scheduling.services import forecast_compute, forecast_refresh
 from scheduling.thermal import thermal_sync
 
+from . import selectors
 from .workflows import service_record_recap
 
 
@@ -271,7 +272,7 @@ def bench_release(*, unit_id, keep_held_reason="", notes="", user=None):
 def unit_by_tag_or_error(tag):
     """The unit with this asset tag (any case), or ServiceError with a one-line message."""
     clean = "".join((tag or "").split()).upper()
-    unit = Unit.objects.filter(asset_tag__iexact=clean).first() if clean else None
+    unit = selectors.tagged(Unit.objects.all(), clean) if clean else None
     if unit is None:
         raise ServiceError(f"No unit has the asset tag {clean or tag!r}.")
     return unit
