@@ -484,9 +484,10 @@ class Rental(models.Model):
             if self.in_at <= self.out_at:
                 errors["in_at"] = "Check-in must come after check-out."
             elif self.powered_hours is not None and self.powered_hours > self.elapsed_hours + 1e-9:
-                errors["powered_hours"] = (
-                    f"{self.powered_hours:g} h powered is more than the {self.elapsed_hours:.1f} h the unit was out."
-                )
+                out = self.elapsed_hours
+                # Under an hour, to the minute: "0.0 h" would say the unit never left.
+                said = f"{out:.1f} h" if out >= 1 else f"{out:.2g} h ({max(out * 60, 0):.0f} min)"
+                errors["powered_hours"] = f"{self.powered_hours:g} h powered is more than the {said} the unit was out."
         if self.powered_hours is not None and self.powered_hours < 0:
             errors["powered_hours"] = "Powered hours cannot be negative."
         if errors:

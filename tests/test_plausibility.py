@@ -162,6 +162,14 @@ def test_a_check_out_before_the_unit_joined_the_fleet_is_refused(fleet):
     assert Rental.objects.get().in_at is None
 
 
+def test_a_short_hire_says_to_the_minute_how_long_the_unit_was_out(fleet):
+    """Under an hour the time out is given in minutes too ("0.0 h" would say it never left)."""
+    rental_check_out(unit_id=fleet.unit.pk, job_ref="QUICK", out_at=timezone.now() - dt.timedelta(minutes=3))
+    with pytest.raises(ServiceError, match=r"0\.5 h powered is more than the 0\.05 h \(3 min\) the unit was out"):
+        rental_check_in(unit_id=fleet.unit.pk, venue_ambient_c=25, powered_hours=0.5)
+    assert Rental.objects.get().in_at is None
+
+
 @pytest.mark.parametrize("moment, message", [
     ("0001-01-01T00:00", "That date is before 1900; check the year."),
     ("1899-12-31T23:00", "That date is before 1900; check the year."),
