@@ -201,6 +201,7 @@ def unit_rows(*, unit_ids=None, id_range=None):
 
 HISTORY_COLUMNS = ("powered", "unpowered", "accounted_until", "last_powered_at", "records_version", "parts", "recent",
                    "parts_version")
+_RECORDS_VERSION = HISTORY_COLUMNS.index("records_version")  # its place in a row of history_rows
 
 
 def history_rows(*, unit_ids=None, id_range=None, columns=HISTORY_COLUMNS):
@@ -320,7 +321,7 @@ def behind(units, histories):
     out = []
     for u in units:
         h = histories.get(u[0])
-        if h is None or h[4] != u[6] or h[-1] != u[6]:
+        if h is None or h[_RECORDS_VERSION] != u[6] or h[-1] != u[6]:
             out.append(u[0])
     return out
 

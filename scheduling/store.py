@@ -115,21 +115,18 @@ def _positions_packed(run, packed, units):
     return [pack_positions(packed[a:b]) for a, b in zip(run._starts[units].tolist(), run._ends[units].tolist())]
 
 
-def _store_rows(run, packed, roles, first, last):
-    """The column values of units ``first`` to ``last`` - 1 of ``run``, in
-    the order of _STORE_COLUMNS less computed_at and horizon_days (the same
-    for every row); ``packed``: every position's record, ``roles``: every
-    unit's ``action_role_masks``."""
+def _store_values(run, packed, roles, units):
+    """The values of the units of the slice ``units`` for _STORE_COLUMNS
+    less computed_at and horizon_days (the same for every row), in that
+    order, as the run holds them: arrays for the figures (dates as float
+    days, NaN for none; priority 0 for none), lists for the status, the
+    reasons' JSON and the positions' blobs.  ``packed``: every position's
+    record (``_position_records``); ``roles``: ``action_role_masks``."""
     fa, r = run.fleet, run.result
-    sl = slice(first, last)
-    positions = _positions_packed(run, packed, sl)
-    return [
-        fa.unit_id[sl].tolist(), list(r.status[sl]), _day_dates(r.due_day[sl]), r.risk[sl].astype(float).tolist(),
-        r.max_damage_ratio[sl].astype(float).tolist(), r.storage_reform[sl].astype(bool).tolist(),
-        [_json_words(words) for words in r.reasons[sl]], positions, _day_dates(r.act_by_day[sl]),
-        [p or None for p in r.priority[sl].tolist()], r.hire_risk[sl].astype(float).tolist(),
-        r.score[sl].astype(float).tolist(), roles[sl].tolist(),
-    ]
+    return [fa.unit_id[units], list(r.status[units]), r.due_day[units], r.risk[units], r.max_damage_ratio[units],
+            r.storage_reform[units], [_json_words(words) for words in r.reasons[units]],
+            _positions_packed(run, packed, units), r.act_by_day[units], r.priority[units], r.hire_risk[units],
+            r.score[units], roles[units]]
 
 
 #: A day that is none (NULL), in the whole days the PostgreSQL store sends.
@@ -144,20 +141,22 @@ def _day_numbers(days):
     return np.where(whole, np.floor(np.where(whole, days, 0.0)), NO_DAY).astype(np.int64)
 
 
-def _store_arrays(run, packed, roles, first, last):
-    """``_store_rows`` for PostgreSQL: the numeric columns as binary arrays
-    (``pgarrays``), dates as ``_day_numbers``, priority 0 for none."""
-    fa, r = run.fleet, run.result
-    sl = slice(first, last)
-    positions = _positions_packed(run, packed, sl)
-    arr = pgarrays.binary_array
-    return [
-        arr(fa.unit_id[sl], "int8"), list(r.status[sl]), arr(_day_numbers(r.due_day[sl]), "int4"),
-        arr(r.risk[sl], "float8"), arr(r.max_damage_ratio[sl], "float8"), arr(r.storage_reform[sl], "bool"),
-        [_json_words(words) for words in r.reasons[sl]], positions, arr(_day_numbers(r.act_by_day[sl]), "int4"),
-        arr(r.priority[sl], "int4"), arr(r.hire_risk[sl], "float8"), arr(r.score[sl], "float8"),
-        arr(roles[sl], "int4"),
-    ]
+#: How the PostgreSQL store sends each of ``_store_values``: as a binary
+#: array of this element type ("day": ``_day_numbers`` as int4), or as the
+#: list it is (None).
+_PG_FORMS = ("int8", None, "day", "float8", "float8", "bool", None, None, "day", "int4", "float8", "float8", "int4")
+
+
+def _store_arrays(run, packed, roles, units):
+    """``_store_values`` as the PostgreSQL store sends them (``_PG_FORMS``)."""
+    def sent(values, form):
+        if form is None:
+            return values
+        if form == "day":
+            return pgarrays.binary_array(_day_numbers(values), "int4")
+        return pgarrays.binary_array(values, form)
+
+    return [sent(v, form) for v, form in zip(_store_values(run, packed, roles, units), _PG_FORMS)]
 
 
 def _store(run):
@@ -174,22 +173,29 @@ def _store(run):
     roles = action_role_masks(run)
     horizon = int(run.policy.horizon_days)
     insert, conflict = _store_sql()
-    with transaction.atomic(savepoint=False), connection.cursor() as cursor:
+    with transaction.atomic(savepoint=False):
         if connection.vendor == "postgresql":
             _store_postgresql(run, packed, roles, now, horizon, insert, conflict)
-        else:
+            return n
+        with connection.cursor() as cursor:
             conn = connections[DEFAULT_DB_ALIAS]
             computed_at = UnitForecast._meta.get_field("computed_at").get_db_prep_save(now, conn)
             u, s, due, risk, ratio, reform, reasons, positions, act_by, priority, hire_risk, score, masks = (
-                _store_rows(run, packed, roles, 0, n))
-            due_text = [None if d is None else d.isoformat() for d in due]
-            act_text = [None if d is None else d.isoformat() for d in act_by]
+                _store_values(run, packed, roles, slice(0, n)))
+
+            def texts(days):
+                return [None if d is None else d.isoformat() for d in _day_dates(days)]
+
+            def floats(x):
+                return x.astype(float).tolist()
+
             cursor.executemany(
                 insert + f"VALUES ({', '.join(['%s'] * len(_STORE_COLUMNS))}) " + conflict,
                 [(uid, computed_at, st, d, rk, horizon, m, f, j, p, a, o, h, c, k)
                  for uid, st, d, rk, m, f, j, p, a, o, h, c, k
-                 in zip(u, s, due_text, risk, ratio, reform, reasons, positions, act_text, priority,
-                        hire_risk, score, masks)],
+                 in zip(u.tolist(), s, texts(due), floats(risk), floats(ratio), reform.astype(bool).tolist(),
+                        reasons, positions, texts(act_by), [p or None for p in priority.tolist()],
+                        floats(hire_risk), floats(score), masks.tolist())],
             )
     return n
 
@@ -221,7 +227,7 @@ def _store_postgresql(run, packed, roles, now, horizon, insert, conflict):
         bounds = list(range(0, n, STORE_STATEMENT_UNITS)) + [n]
         with conn.pipeline() if len(bounds) > 2 else contextlib.nullcontext():
             for first, last in zip(bounds[:-1], bounds[1:]):
-                u, *rest = _store_arrays(run, packed, roles, first, last)
+                u, *rest = _store_arrays(run, packed, roles, slice(first, last))
                 raw.execute(sql, [now, horizon, u, *rest])
     finally:
         raw.close()
