@@ -57,3 +57,22 @@ def table_state(model):
     when = "never vacuumed" if vacuumed is None else f"last vacuumed {vacuumed:%Y-%m-%d %H:%M} UTC"
     return (f"{table}: {live:,} live rows, {dead:,} dead row versions, {size / 2**20:.0f} MB, {when}, "
             f"autovacuum {auto}"), dead
+
+
+def vacuumed(*models):
+    """PostgreSQL: ``VACUUM (ANALYZE)`` the tables of ``models`` whatever the
+    server's autovacuum setting, and return the seconds it took; 0.0 on
+    another database.  A benchmark that rewrites every row again and again
+    calls it between runs, so that each run meets the table as the nightly
+    job (``services.forecast_tables_vacuum``) or autovacuum leaves it after a
+    full refresh, not with the dead versions of every run before it."""
+    import time
+
+    from django.db import connection
+
+    if connection.vendor != "postgresql":
+        return 0.0
+    started = time.perf_counter()
+    with connection.cursor() as cursor:
+        cursor.execute(f"VACUUM (ANALYZE) {', '.join(connection.ops.quote_name(m._meta.db_table) for m in models)}")
+    return time.perf_counter() - started
