@@ -30,6 +30,7 @@ from fleet.models import GearModel, Unit
 
 from .forecast import model_use_sums
 from .gcpause import with_collector_paused
+from .heap import keep_freed_memory
 from .loader import history_rows, unit_rows, use_arrays
 from .models import UnitForecast
 from .services import (_options_from, _store, _store_unforecastable, forecast_compute, forecast_tables_vacuum,
@@ -61,6 +62,7 @@ def first_pass_sums(batches, *, today, min_history_days, keep=None):
     (gear model ids, sums as ``forecast.model_use_sums`` gives).  ``keep``,
     a dict, is given each batch's use arrays (a few floats a unit) for the
     second pass to reuse."""
+    keep_freed_memory()  # large freed arrays kept for the next batch (heap.py)
     model_ids = np.array(GearModel.objects.order_by("pk").values_list("pk", flat=True), dtype=np.int64)
     index = {int(m): k for k, m in enumerate(model_ids.tolist())}
     total = None
@@ -83,6 +85,7 @@ def forecast_batch(first_id, last_id, *, today, model_means, use=None, **options
     retired) with the fleet's gear-model means; priorities are left as
     place-holders for ``priorities_rank``.  Returns (units forecast, units
     that could not be, seconds by stage)."""
+    keep_freed_memory()  # large freed arrays kept for the next batch (heap.py)
     run = forecast_compute(id_range=(first_id, last_id), today=today, model_means=model_means, use=use, **options)
     started = time.perf_counter()
     with transaction.atomic():

@@ -22,6 +22,7 @@ from .checks import compute_sound
 from .days import day_to_date
 from .forecast import EngineOptions, Policy
 from .gcpause import with_collector_paused
+from .heap import keep_freed_memory
 from .loader import active_policy, load_fleet
 from .forecast import model_use_means, model_use_sums
 from .models import ModelUse, ThermalHistory, UnitForecast
@@ -304,6 +305,8 @@ def forecast_refresh(*, unit_ids=None, today=None, sync=True, **options):
     results are removed.  The whole fleet also keeps its gear models' means
     for later forecasts of a few units.  Returns the ForecastRun.
     """
+    if unit_ids is None or len(unit_ids) > PLACE_AT_MOST:
+        keep_freed_memory()  # a refresh of many units: large freed arrays kept for the next (heap.py)
     run = forecast_compute(unit_ids=unit_ids, today=today, sync=sync, **options)
     # No savepoint: inside a caller's transaction (check-in) a failure here
     # fails the whole of it, and it saves two round trips per refresh.
