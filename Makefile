@@ -45,7 +45,7 @@ beat: $(STAMP)
 	$(BIN)/celery -A config beat --loglevel=INFO
 
 web: $(STAMP)
-	$(BIN)/gunicorn config.wsgi --bind 0.0.0.0:8000 --workers 3
+	$(BIN)/gunicorn -c python:config.gunicorn config.wsgi --bind 0.0.0.0:8000 --workers 3
 
 check-deploy: $(STAMP)
 	DEBUG=false SECRET_KEY=$$(head -c 48 /dev/urandom | base64) ALLOWED_HOSTS=recap.example \

@@ -252,7 +252,7 @@ class Command(BaseCommand):
         })
         log = open(Path(var_dir) / "gunicorn.log", "wb")
         return subprocess.Popen(
-            [sys.executable, "-m", "gunicorn", "config.wsgi", "--bind", f"127.0.0.1:{port}",
+            [sys.executable, "-m", "gunicorn", "-c", "python:config.gunicorn", "config.wsgi", "--bind", f"127.0.0.1:{port}",
              "--workers", str(workers), "--log-level", "warning", "--timeout", "120", "--no-control-socket"],
             cwd=settings.BASE_DIR, env=env, stdout=log, stderr=subprocess.STDOUT)
 
