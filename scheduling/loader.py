@@ -21,7 +21,7 @@ from . import physics
 from .forecast import ROLE_CODES, date_to_day
 from . import recent as R
 from .models import HistogramSnapshot, ModelUse, ThermalHistory
-from .parts import CAPACITOR_ROW, as_columns, read_rows, rows_bytes
+from .parts import CAPACITOR_ROW, as_columns, columns_of, read_rows, rows_bytes
 from .thermal import location_monthly_temps, thermal_sync
 from .sqlread import fetch_all
 
@@ -273,15 +273,14 @@ def _fitted_parts(units, histories, unit_ids_arr):
             raws.append(raw)
         else:
             missing.append(u[0])
-    arr = np.frombuffer(b"".join(raws), dtype=CAPACITOR_ROW) if raws else np.zeros(0, dtype=CAPACITOR_ROW)
-    if missing:
-        rows = read_rows(None if len(missing) > 30000 else missing)
-        arr = np.concatenate([arr, rows]) if arr.size else rows
-        arr = arr[np.lexsort((arr["id"], arr["unit_id"]))]
-    caps = as_columns(arr)
     if not missing:  # every unit from its own pack, in unit order: its rows are its pack's
         counts = np.fromiter((len(raw) // CAPACITOR_ROW.itemsize for raw in raws), dtype=np.int64, count=len(raws))
-        return caps, np.repeat(np.arange(len(raws), dtype=np.int64), counts)
+        return columns_of(raws), np.repeat(np.arange(len(raws), dtype=np.int64), counts)
+    arr = np.frombuffer(b"".join(raws), dtype=CAPACITOR_ROW) if raws else np.zeros(0, dtype=CAPACITOR_ROW)
+    rows = read_rows(None if len(missing) > 30000 else missing)
+    arr = np.concatenate([arr, rows]) if arr.size else rows
+    arr = arr[np.lexsort((arr["id"], arr["unit_id"]))]
+    caps = as_columns(arr)
     cap_unit_index = _index_of(unit_ids_arr, caps["unit_id"])
     keep = cap_unit_index >= 0  # capacitors of retired units are left out
     if not keep.all():

