@@ -119,6 +119,9 @@ class Command(BaseCommand):
             floor.append(t1 - t0)
             full.append(t2 - t1)
             stages.append(run.seconds)
+            # Not held into the next run: a worker holds one run's arrays at a time,
+            # and the two together would take the next run's memory fresh from the system.
+            run = None
             vacuums.append(vacuumed(UnitForecast))
         batched = []
         for _ in range(max(1, options["repeat"] // 2)):
@@ -146,6 +149,8 @@ class Command(BaseCommand):
               f"format (the engine's own reads use it; the budget is set against the floor above)")
         w(f"full recompute      {statistics.median(full):8.3f} s   median (best {min(full):.3f}): one pass, load, "
           f"compute, store")
+        w(f"  each pair         floor {', '.join(f'{t:.3f}' for t in floor)} s; full {', '.join(f'{t:.3f}' for t in full)} s "
+          f"(in the order run)")
         w(f"  of which          load {best['load']:.3f} s, compute {best['compute']:.3f} s, store {best['store']:.3f} s "
           f"(the best run)")
         if connection.vendor == "postgresql":
