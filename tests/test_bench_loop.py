@@ -7,6 +7,7 @@ the loop applies them as documented.
 
 import datetime as dt
 import json
+import zoneinfo
 from io import StringIO
 
 import numpy as np
@@ -350,3 +351,45 @@ def test_readings_stay_with_their_unit_when_another_unit_cannot_be_forecast(unit
     c1 = next(q for q in run.unit_dict(0)["positions"] if q["designator"] == "C1")
     assert c1["damage"] == pytest.approx(p["damage"] + 1.0, rel=1e-5)
     assert c1["measured_esr_ohm"] == pytest.approx(2 * p["esr_ohm"], rel=1e-6)
+
+
+def test_the_engine_reads_the_readings_that_move_the_forecast_with_their_local_day(unit):
+    """The loader's plain-cursor read of the readings (scheduling.loader._readings)
+    against the same question asked through the ORM, whose times are aware:
+    the same rows, and each reading's day the local one (a reading at 00:30
+    British Summer Time is on the day after its UTC date)."""
+    from django.db.models import Q
+
+    from scheduling.loader import _readings
+
+    c4, c5 = (Position.objects.get(gear_model=unit.gear_model, designator=d) for d in ("C4", "C5"))
+    london = zoneinfo.ZoneInfo("Europe/London")
+    at = [dt.datetime(2026, 7, 11, 0, 30, tzinfo=london), dt.datetime(2026, 1, 5, 23, 59, 59, 900000, tzinfo=london),
+          dt.datetime(2026, 3, 29, 1, 30, tzinfo=dt.timezone.utc)]
+    made = [
+        Reading.objects.create(unit=unit, kind=Reading.Kind.CAPACITOR, taken_at=at[0], position=c4, esr_ohm=4.2),
+        Reading.objects.create(unit=unit, kind=Reading.Kind.CAPACITOR, taken_at=at[1], position=c5,
+                               capacitance_uf=40.0),
+        Reading.objects.create(unit=unit, kind=Reading.Kind.RAIL, taken_at=at[2], rail_name="-5V",
+                               rail_measured_v=-4.1, rail_load_ma=10.0, rail_input_v=5.0, pump_position=c4),
+        # Not read: a part since replaced, a rail without a load, a capacitor with neither figure.
+        Reading.objects.create(unit=unit, kind=Reading.Kind.CAPACITOR, taken_at=at[0], position=c5, esr_ohm=9.0,
+                               part_removed=True),
+        Reading.objects.create(unit=unit, kind=Reading.Kind.RAIL, taken_at=at[0], rail_name="-5V",
+                               rail_measured_v=-4.0, pump_position=c4),
+        Reading.objects.create(unit=unit, kind=Reading.Kind.CAPACITOR, taken_at=at[0], position=c4, leakage_ua=3.0),
+    ]
+    orm = list(Reading.objects.filter(part_removed=False).filter(
+        Q(kind="capacitor", esr_ohm__isnull=False) | Q(kind="capacitor", capacitance_uf__isnull=False)
+        | Q(kind="rail", pump_position__isnull=False, rail_load_ma__gt=0)).filter(unit_id__in=[unit.pk])
+        .order_by("unit_id", "taken_at", "id").values_list(
+        "unit_id", "kind", "position_id", "taken_at", "esr_ohm", "capacitance_uf", "pump_position_id",
+        "rail_measured_v", "rail_input_v", "rail_load_ma"))
+    read = _readings([unit.pk])
+    assert len(read["rows"]) == len(orm) == 3 and {r[1] for r in read["rows"]} == {"capacitor", "rail"}
+    assert [r[:3] + r[4:] for r in read["rows"]] == [r[:3] + r[4:] for r in orm]
+    # The local days: 5 Jan (GMT), 29 Mar (01:30 UTC is 02:30 BST, the day the clocks go forward), 11 Jul (BST).
+    epoch = dt.date(1970, 1, 1)
+    assert read["days"].tolist() == [float((d - epoch).days) for d in
+                                     (dt.date(2026, 1, 5), dt.date(2026, 3, 29), dt.date(2026, 7, 11))]
+    assert read["unit_id"].tolist() == [unit.pk] * 3 and len(made) == 6
