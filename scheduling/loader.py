@@ -460,10 +460,11 @@ def _baselines(caps, unit_ids, extra_units=()):
     if not wanted.size:
         return (np.full(n, -1, dtype=np.int64), np.zeros((0, H.N_BINS)), np.zeros((0, H.N_BINS)),
                 lambda units, days: np.full(np.shape(units), -1, dtype=np.int64))
-    qs = HistogramSnapshot.objects.order_by("unit_id", "taken_on")
-    if unit_ids is not None:
-        qs = qs.filter(unit_id__in=wanted.tolist())
-    rows = list(qs.values_list("unit_id", "taken_on", "powered", "unpowered"))
+    qn = connection.ops.quote_name
+    where, params = _unit_filter(None if unit_ids is None else wanted.tolist(), None, "unit_id")
+    rows = _select(HistogramSnapshot, ("unit", "taken_on", "powered", "unpowered"),
+                   f" WHERE 1 = 1{where} ORDER BY {qn('unit_id')}, {qn('taken_on')}", params, as_text={"taken_on"})
+    rows = [(r[0], dt.date.fromisoformat(r[1][:10]), bytes(r[2]), bytes(r[3])) for r in rows]
     sp = H.stack_from_bytes([r[2] for r in rows]) if rows else np.zeros((0, H.N_BINS))
     su = H.stack_from_bytes([r[3] for r in rows]) if rows else np.zeros((0, H.N_BINS))
     # (unit, day) as one sortable key; days since 1970 fit in 2**20 for millennia.
