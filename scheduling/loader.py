@@ -188,12 +188,13 @@ def _index_of(sorted_ids, ids):
     return np.where(sorted_ids[k] == ids, k, -1).astype(np.int64)
 
 
-def _unit_filter(unit_ids, id_range, column="id"):
-    """SQL and parameters restricting ``column`` to some unit ids, or to an
-    inclusive id range (a batch of the fleet refresh), or nothing."""
+def _id_filter(ids, id_range, column="id"):
+    """SQL and parameters restricting ``column`` to some ids (of units, or of
+    positions), or to an inclusive id range (a batch of the fleet refresh),
+    or nothing."""
     qn = connection.ops.quote_name
-    if unit_ids is not None:
-        return f" AND {qn(column)} IN ({', '.join(['%s'] * len(unit_ids)) or 'NULL'})", list(unit_ids)
+    if ids is not None:
+        return f" AND {qn(column)} IN ({', '.join(['%s'] * len(ids)) or 'NULL'})", list(ids)
     if id_range is not None:
         return f" AND {qn(column)} BETWEEN %s AND %s", [int(id_range[0]), int(id_range[1])]
     return "", []
@@ -204,7 +205,7 @@ def unit_rows(*, unit_ids=None, id_range=None):
     gear model id, home location id, year made, joined on as text, records
     version)."""
     qn = connection.ops.quote_name
-    where, params = _unit_filter(unit_ids, id_range)
+    where, params = _id_filter(unit_ids, id_range)
     return _raw(
         f"SELECT {qn('id')}, {qn('asset_tag')}, {qn('gear_model_id')}, {qn('home_location_id')}, "
         f"{qn('year_made')}, CAST({qn('joined_on')} AS TEXT), {qn('records_version')} "
@@ -221,7 +222,7 @@ _RECORDS_VERSION = HISTORY_COLUMNS.index("records_version")  # its place in a ro
 def history_rows(*, unit_ids=None, id_range=None, columns=HISTORY_COLUMNS):
     """{unit id: row} of the thermal histories (the columns asked for, in order)."""
     qn = connection.ops.quote_name
-    where, params = _unit_filter(unit_ids, id_range, "unit_id")
+    where, params = _id_filter(unit_ids, id_range, "unit_id")
     cast = {"accounted_until", "last_powered_at"}
     cols = ", ".join(f"CAST({qn(c)} AS TEXT)" if c in cast else qn(c) for c in columns)
     rows = _raw(f"SELECT {qn('unit_id')}, {cols} FROM {qn(ThermalHistory._meta.db_table)} WHERE 1 = 1{where}",
@@ -403,7 +404,7 @@ def load_fleet(*, unit_ids=None, today, min_history_days=180, id_range=None, mod
     caps, cap_unit_index = _fitted_parts(units, histories, unit_ids_arr)
     del histories, rows
 
-    where, params = _unit_filter(None if filter_ids is None else sorted(set(caps["position_id"].tolist())), None)
+    where, params = _id_filter(None if filter_ids is None else sorted(set(caps["position_id"].tolist())), None)
     pos_rows = _select(Position, ("id", "gear_model", "designator", "role", "ripple_current_a", "pump_partner",
                                   *CIRCUIT_FIELDS),
                        f" WHERE 1 = 1{where} ORDER BY {connection.ops.quote_name('id')}", params)
@@ -461,7 +462,7 @@ def _baselines(caps, unit_ids, extra_units=()):
         return (np.full(n, -1, dtype=np.int64), np.zeros((0, H.N_BINS)), np.zeros((0, H.N_BINS)),
                 lambda units, days: np.full(np.shape(units), -1, dtype=np.int64))
     qn = connection.ops.quote_name
-    where, params = _unit_filter(None if unit_ids is None else wanted.tolist(), None, "unit_id")
+    where, params = _id_filter(None if unit_ids is None else wanted.tolist(), None, "unit_id")
     rows = _select(HistogramSnapshot, ("unit", "taken_on", "powered", "unpowered"),
                    f" WHERE 1 = 1{where} ORDER BY {qn('unit_id')}, {qn('taken_on')}", params, as_text={"taken_on"})
     rows = [(r[0], dt.date.fromisoformat(r[1][:10]), bytes(r[2]), bytes(r[3])) for r in rows]
@@ -485,7 +486,7 @@ def _readings(unit_ids):
     can move the forecast: capacitors with an ESR or a capacitance, negative
     rails of a charge pump under a load.  One query."""
     qn = connection.ops.quote_name
-    where, params = _unit_filter(unit_ids, None, "unit_id")
+    where, params = _id_filter(unit_ids, None, "unit_id")
     rows = _select(
         Reading, ("unit", "kind", "position", "taken_at", "esr_ohm", "capacitance_uf", "pump_position",
                   "rail_measured_v", "rail_input_v", "rail_load_ma"),

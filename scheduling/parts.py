@@ -157,15 +157,17 @@ def columns_of(raws, block_bytes=COLUMN_BLOCK_BYTES):
             group, size = [], 0
     if group:
         copy_out()
-    for name in ("esr_ohm", "tan_delta"):
-        column = out[name]
-        column[column < 0] = np.nan
-    return out
+    return _nulls_as_nan(out)
 
 
 def as_columns(arr):
     """A CAPACITOR_ROW array as contiguous columns, NULL figures as NaN."""
-    out = {name: np.ascontiguousarray(arr[name]) for name in CAPACITOR_ROW.names}
+    return _nulls_as_nan({name: np.array(arr[name]) for name in CAPACITOR_ROW.names})
+
+
+def _nulls_as_nan(columns):
+    """The figures packed as -1 for NULL (ESR, tan delta) as NaN, in place."""
     for name in ("esr_ohm", "tan_delta"):
-        out[name] = np.where(out[name] < 0, np.nan, out[name])
-    return out
+        column = columns[name]
+        column[column < 0] = np.nan
+    return columns
