@@ -10,7 +10,7 @@ Stored units as in ``fleet.models``: ohm, Hz, uF, uA, V, mA.
 from django.conf import settings
 from django.db import models
 from django.db.models import Q
-from simple_history.models import HistoricalRecords
+from .audit import AuditTrail
 
 
 class BenchVisit(models.Model):
@@ -33,7 +33,7 @@ class BenchVisit(models.Model):
     outcome = models.CharField(max_length=10, choices=Outcome.choices, default=Outcome.OPEN)
     outcome_notes = models.TextField(blank=True, help_text="Why it stays held, in words the desk can read; "
                                                            "or notes at release.")
-    history = HistoricalRecords()
+    history = AuditTrail()
 
     class Meta:
         ordering = ["-opened_at", "-id"]
@@ -88,7 +88,7 @@ class Reading(models.Model):
                                                                   "makes this rail.")
     predicted_rail_v = models.FloatField(null=True, blank=True, help_text="V; the forecast's figure when read")
     notes = models.CharField(max_length=200, blank=True)
-    history = HistoricalRecords()
+    history = AuditTrail()
 
     class Meta:
         ordering = ["-taken_at", "-id"]

@@ -16,7 +16,7 @@ from django.core.validators import MaxValueValidator, MinValueValidator, RegexVa
 from django.db import models
 from django.db.models import F, Q
 from django.utils import timezone
-from simple_history.models import HistoricalRecords
+from .audit import AuditTrail
 
 from .dates import EARLIEST_DATE, LATEST_DATE, before_unit, outside_register  # noqa: F401  (imported from here too)
 
@@ -372,7 +372,7 @@ class Unit(models.Model):
         help_text="Goes up whenever the records the unit's exposure is worked out from change (a hire closed "
                   "or edited, fitted parts, dates, prior use, home location, the model's internal rise).",
     )
-    history = HistoricalRecords(excluded_fields=["records_version"])
+    history = AuditTrail(excluded_fields=["records_version"])
 
     class Meta:
         ordering = ["asset_tag"]
@@ -400,7 +400,7 @@ class UnitCapacitor(CapacitorRatings):
     position = models.ForeignKey(Position, on_delete=models.PROTECT, related_name="fitted")
     installed_on = models.DateField(help_text="Date this part went in (date of manufacture for originals).")
     is_original = models.BooleanField(default=True)
-    history = HistoricalRecords()
+    history = AuditTrail()
 
     class Meta:
         ordering = ["unit", "position__designator"]
@@ -434,7 +434,7 @@ class Rental(models.Model):
     reported_faults = models.TextField(blank=True)
     checked_in_by = models.ForeignKey(settings.AUTH_USER_MODEL, null=True, blank=True,
                                       on_delete=models.SET_NULL, related_name="+")
-    history = HistoricalRecords()
+    history = AuditTrail()
 
     class Meta:
         ordering = ["-out_at"]
@@ -514,7 +514,7 @@ class ServiceRecord(models.Model):
     signed_off_at = models.DateTimeField(null=True, blank=True)
     bench_visit = models.ForeignKey("fleet.BenchVisit", null=True, blank=True, on_delete=models.SET_NULL,
                                     related_name="service_records")
-    history = HistoricalRecords()
+    history = AuditTrail()
 
     class Meta:
         ordering = ["-performed_on", "-id"]

@@ -5,7 +5,7 @@ over a horizon, damage, calendar age, storage).  Part of the register
 from django.core.validators import MaxValueValidator, MinValueValidator
 from django.db import models
 from django.db.models import Q
-from simple_history.models import HistoricalRecords
+from .audit import AuditTrail
 
 
 class MaintenancePolicy(models.Model):
@@ -31,7 +31,7 @@ class MaintenancePolicy(models.Model):
     watch_days = models.PositiveIntegerField(
         default=180, help_text="A unit due within this many days is on the watch list."
     )
-    history = HistoricalRecords()
+    history = AuditTrail()
 
     class Meta:
         verbose_name_plural = "maintenance policies"
