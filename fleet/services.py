@@ -170,10 +170,12 @@ def rental_close(*, unit_id, in_at=None, venue_ambient_c, powered_hours=None, me
     inside a caller's transaction a refusal fails the whole of it, as the
     check-in workflow wants.
     """
-    unit = Unit.objects.select_for_update().get(pk=unit_id)
-    rental = _open_rental(unit.pk)
+    # The open hire and its unit, both locked, in one query.
+    rental = (Rental.objects.select_for_update(of=("self", "unit")).select_related("unit")
+              .filter(unit_id=unit_id, in_at__isnull=True).first())
     if rental is None:
-        raise ServiceError(f"{unit.asset_tag} is not out on hire.")
+        raise ServiceError(f"{Unit.objects.get(pk=unit_id).asset_tag} is not out on hire.")
+    unit = rental.unit
     in_at = in_at or timezone.now()
     if in_at <= rental.out_at:
         raise ServiceError("Check-in must come after check-out "
@@ -208,7 +210,6 @@ def rental_close(*, unit_id, in_at=None, venue_ambient_c, powered_hours=None, me
     rental.checked_in_by = user
     if venue_ambient_c is None:
         raise ServiceError("Give the venue ambient temperature.")
-    rental.unit = unit  # clean() reads it: the row locked above, not a second query
     try:
         # The unit and users exist (the unit is locked, the users signed in),
         # and the table's check constraints are the rules clean() checks in
