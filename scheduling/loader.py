@@ -352,12 +352,16 @@ def load_fleet(*, unit_ids=None, today, min_history_days=180, id_range=None, mod
     recent use as a first pass read it (unit ids, then ``use_arrays``'s
     four arrays), taken when the units loaded are the same.  ``known``: what
     the caller's transaction just wrote or read for ``unit_ids``
-    (``thermal.CheckInSync``), not read again: its history, when it is the
-    only unit, and its home's monthly temperatures.  ``sync``: bring the
+    (``thermal.CheckInSync``), not read again: when it is the only unit, its
+    row and its history; and its home's monthly temperatures.  ``sync``: bring the
     histories of any of the units that are behind their records up to date
     first (``thermal.thermal_sync``), as told by the rows read here: no
     query of its own when none is behind."""
-    units = unit_rows(unit_ids=unit_ids, id_range=id_range)
+    if (known is not None and known.unit_row is not None and unit_ids is not None
+            and list(unit_ids) == [known.history.unit_id] == [known.unit_row[0]]):
+        units = [known.unit_row]  # the unit the check-in locked and wrote: not read again
+    else:
+        units = unit_rows(unit_ids=unit_ids, id_range=id_range)
     ids = [u[0] for u in units]
     filter_ids = None if unit_ids is None and id_range is None else ids
     n = len(units)

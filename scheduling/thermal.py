@@ -389,7 +389,17 @@ def thermal_check_in(unit, rental):
     history.save(update_fields=["powered", "unpowered", "accounted_until", "last_powered_at", "rentals_counted",
                                 "powered_hours_counted", "records_version", "basis", "recent", "parts_version",
                                 "updated_at"])
-    return CheckInSync(history=history, location_temps={unit.home_location_id: temps})
+    return CheckInSync(history=history, location_temps={unit.home_location_id: temps}, unit_row=unit_row_of(unit))
+
+
+def unit_row_of(unit):
+    """The locked ``unit`` as ``loader.unit_rows`` reads a unit's row (its
+    records version as the caller's transaction holds it), or None for a
+    retired unit (which the engine does not forecast)."""
+    if unit.status == unit.Status.RETIRED:
+        return None
+    return (unit.pk, unit.asset_tag, unit.gear_model_id, unit.home_location_id, unit.year_made,
+            unit.joined_on.isoformat(), unit.records_version)
 
 
 @dataclass
@@ -399,6 +409,7 @@ class CheckInSync:
 
     history: ThermalHistory
     location_temps: dict  # {location id: monthly temperatures [degC], ndarray(12)}
+    unit_row: tuple = None  # the unit locked and written, as ``loader.unit_rows`` reads it
 
 
 @transaction.atomic
