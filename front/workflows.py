@@ -33,7 +33,7 @@ from fleet.services import ServiceError  # noqa: F401  (raised through here; cal
 from reports import formatting as fmt
 from scheduling.loader import active_policy
 from scheduling.models import UnitForecast
-from scheduling.services import forecast_refresh
+from scheduling.services import forecast_refresh, rows_as_stored
 from scheduling.thermal import thermal_check_in, thermal_sync
 
 
@@ -151,7 +151,9 @@ def rental_check_in(*, unit_id, in_at=None, venue_ambient_c, powered_hours=None,
     estimate or the hour meter, faults put the unit on hold), adds the hire to
     the unit's thermal history, recomputes its forecast as of the check-in day
     and puts a unit the forecast calls due or overdue on hold for a recap.
-    Returns the closed rental.
+    Returns the closed rental, its ``forecast_now`` the unit's forecast row
+    as just stored (built from the refresh, not read back; None when the unit
+    has none), for the verdict.
     """
     rental = register.rental_close(unit_id=unit_id, in_at=in_at, venue_ambient_c=venue_ambient_c,
                                    powered_hours=powered_hours, meter_reading_h=meter_reading_h,
@@ -169,6 +171,7 @@ def rental_check_in(*, unit_id, in_at=None, venue_ambient_c, powered_hours=None,
         # The unit row rental_close locked in this transaction: not looked up again.
         register.unit_hold_locked(rental.unit, user=user, reason=(
             f"The forecast says {run.result.status[0]} for a recap" + (f": {reasons[0]}" if reasons else ".")))
+    rental.forecast_now = rows_as_stored(run, [unit_id]).get(unit_id)
     return rental
 
 

@@ -31,7 +31,8 @@ from .triage import ACTION_NAMES
 # The stored rows' format and the store, used here and, through this module,
 # by the pages and reports (services.pack_positions and the rest).
 from .store import (OLD_POSITION_LAYOUT, POSITION_DTYPE, POSITION_LAYOUT, _day_dates, _json_words,  # noqa: F401
-                    _store, _store_unforecastable, action_role_masks, pack_positions, stored_positions)
+                    _store, _store_unforecastable, action_role_masks, pack_positions, rows_as_stored,
+                    stored_positions)
 
 log = logging.getLogger(__name__)
 
@@ -227,6 +228,7 @@ def priorities_place(run):
     qn = connection.ops.quote_name
     t = qn(UnitForecast._meta.db_table)
     unit, score_, act = (f"o.{qn(c)}" for c in ("unit_id", "score", "act_by"))
+    run.places = {}
     with connection.cursor() as cursor:
         for unit_id, score, act_by in rows:
             # Ranked before it: a higher score (an index-only range of the
@@ -241,8 +243,9 @@ def priorities_place(run):
             needs = f"SELECT COUNT(*) FROM {t} AS o WHERE o.{qn('priority')} IS NOT NULL AND {score_}"
             cursor.execute(
                 f"UPDATE {t} SET {qn('priority')} = 1 + ({needs} > %s) + ({needs} = %s AND {tied} AND {unit} <> %s) "
-                f"WHERE {qn('unit_id')} = %s",
+                f"WHERE {qn('unit_id')} = %s RETURNING {qn('priority')}",
                 [score, score, *tied_params, unit_id, unit_id])
+            run.places[unit_id] = cursor.fetchone()[0]  # for ``rows_as_stored``
     transaction.on_commit(_queue_ranking)
 
 

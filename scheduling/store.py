@@ -168,6 +168,7 @@ def _store(run):
     run over the rows (``executemany``, in-process, no round trips).
     """
     now = timezone.now()
+    run.stored_at = now  # the rows' computed_at (``rows_as_stored``)
     packed = _position_records(run)
     n = run.fleet.n_units
     roles = action_role_masks(run)
@@ -237,18 +238,56 @@ def _store_postgresql(run, packed, roles, now, horizon, insert, conflict):
             "time": f"{time.monotonic() - started:.3f}"})
 
 
+def _unforecastable_row(run, unit, now):
+    return UnitForecast(unit_id=unit.unit_id, computed_at=now, status=UnitForecast.Status.INVALID, due_date=None,
+                        risk=None, horizon_days=int(run.policy.horizon_days), max_damage_ratio=None,
+                        storage_reform=False, reasons=list(unit.reasons), positions=b"")
+
+
 def _store_unforecastable(run):
     """Upsert the rows of the units that could not be forecast: the status
     "cannot forecast", the reasons, and no figures (one statement)."""
     if not run.unforecastable:
         return
-    now = timezone.now()
-    rows = [UnitForecast(unit_id=u.unit_id, computed_at=now, status=UnitForecast.Status.INVALID, due_date=None,
-                         risk=None, horizon_days=int(run.policy.horizon_days), max_damage_ratio=None,
-                         storage_reform=False, reasons=list(u.reasons), positions=b"")
-            for u in run.unforecastable]
+    now = getattr(run, "stored_at", None) or timezone.now()
+    rows = [_unforecastable_row(run, u, now) for u in run.unforecastable]
     fields = [f.name for f in UnitForecast._meta.concrete_fields if f.name not in ("id", "unit")]
     UnitForecast.objects.bulk_create(rows, update_conflicts=True, unique_fields=["unit"], update_fields=fields)
+
+
+def rows_as_stored(run, unit_ids):
+    """{unit id: UnitForecast}: the rows ``_store`` and
+    ``_store_unforecastable`` wrote for ``unit_ids`` from ``run``, as
+    unsaved instances built from the run (not read back), with the places
+    ``priorities_place`` gave (``run.places``) where it placed them.  A unit of neither has no
+    row (retired: its row was removed)."""
+    fa, r = run.fleet, run.result
+    now = run.stored_at
+    horizon = int(run.policy.horizon_days)
+    index = {u: k for k, u in enumerate(fa.unit_id.tolist())}
+    places = getattr(run, "places", {})
+    rows = {}
+    wanted = [index[u] for u in unit_ids if u in index]
+    if wanted:
+        packed, roles = _position_records(run), action_role_masks(run)
+    for k in wanted:
+        u, s, due, risk, ratio, reform, _, positions, act_by, priority, hire_risk, score, masks = (
+            _store_values(run, packed, roles, slice(k, k + 1)))
+        unit_id = int(u[0])
+
+        def number(x):
+            return float(x[0])
+
+        rows[unit_id] = UnitForecast(
+            unit_id=unit_id, computed_at=now, status=s[0], due_date=_day_dates(due)[0], risk=number(risk),
+            horizon_days=horizon, max_damage_ratio=number(ratio), storage_reform=bool(reform[0]),
+            reasons=list(r.reasons[k]), positions=positions[0], act_by=_day_dates(act_by)[0],
+            priority=places.get(unit_id, int(priority[0]) or None), hire_risk=number(hire_risk), score=number(score),
+            action_roles=int(masks[0]))
+    for unit in run.unforecastable:
+        if unit.unit_id in unit_ids:
+            rows[unit.unit_id] = _unforecastable_row(run, unit, now)
+    return rows
 
 
 def pack_positions(records):

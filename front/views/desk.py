@@ -132,8 +132,10 @@ def check_in(request):
     })
 
 
-def _verdict(rental):
-    verdict = return_verdict(rental, selectors.forecast_for(rental.unit_id))
+def _verdict(rental, forecast=None):
+    """The verdict on ``rental`` just closed: from ``forecast`` (the check-in's
+    own, as it stored it) or the unit's forecast read from the table."""
+    verdict = return_verdict(rental, forecast if forecast is not None else selectors.forecast_for(rental.unit_id))
     verdict["rental"] = rental
     return verdict
 
@@ -149,6 +151,6 @@ def _returned_page(request, rental):
     form = CheckInForm()
     form.focus()
     response = page(request, "front/check_in.html", {
-        "form": form, "verdict": _verdict(rental), "open_rental": None, "meter": None, "returned_url": url})
+        "form": form, "verdict": _verdict(rental, rental.forecast_now), "open_rental": None, "meter": None, "returned_url": url})
     response["Content-Location"] = url
     return response
