@@ -76,3 +76,27 @@ def vacuumed(*models):
     with connection.cursor() as cursor:
         cursor.execute(f"VACUUM (ANALYZE) {', '.join(connection.ops.quote_name(m._meta.db_table) for m in models)}")
     return time.perf_counter() - started
+
+
+def yardstick_ms(rounds=5):
+    """How fast this machine runs Python just now, to read figures of
+    different runs against: the fastest of ``rounds`` runs of a fixed
+    pure-Python task (a million additions in a loop, then sorting 200,000
+    floats) [ms]; lower is faster.  The desk's check-in is mostly Python,
+    and a machine shared with others changes speed from hour to hour: a
+    figure missed with a yardstick twice the usual tells a slow machine,
+    not slower code.  Not a budget."""
+    import random
+    import time
+
+    rng = random.Random(12)
+    values = [rng.random() for _ in range(200_000)]
+    best = float("inf")
+    for _ in range(rounds):
+        started = time.perf_counter()
+        total = 0
+        for k in range(1_000_000):
+            total += k
+        sorted(values)
+        best = min(best, time.perf_counter() - started)
+    return best * 1000

@@ -41,6 +41,9 @@ def test_it_checks_units_out_and_in_through_the_server_and_records_the_figures(b
     for key in (f"checkin_p50_ms_{vendor}", f"checkin_p95_ms_{vendor}", f"checkin_queries_{vendor}"):
         assert figures[key] > 0, key
     assert figures[f"checkin_p95_ms_{vendor}"] >= figures[f"checkin_p50_ms_{vendor}"]
+    # The machine's speed before and after, their mean recorded.
+    before_ms, after_ms = map(float, re.search(r"Machine yardstick .*: (\d+) ms before, (\d+) ms after", text).groups())
+    assert figures[f"checkin_yardstick_ms_{vendor}"] == pytest.approx((before_ms + after_ms) / 2, abs=0.5)
     assert re.search(r"3 timed after 1 warm-up: p50 [\d.]+ ms, p95 [\d.]+ ms, max [\d.]+ ms", text), text
     assert re.search(rf"Queries per check-in: {figures[f'checkin_queries_{vendor}']} for the POST with its "
                      r"verdict, \d+ for a reload of the verdict", text), text

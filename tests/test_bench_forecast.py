@@ -45,6 +45,9 @@ def test_it_times_the_fleet_and_records_the_figures(bench_file):
     suffix = "" if connection.vendor == "sqlite" else f"_{connection.vendor}"
     for key in ("floor_s", "full_s", "ratio_full_to_floor", "naive_ratio", "peak_mb_10k", "one_unit_ms"):
         assert figures[key + suffix] > 0, key
+    # The machine's speed, printed and recorded.
+    assert float(re.search(r"machine yardstick\s+(\d+) ms", text).group(1)) == pytest.approx(
+        figures["yardstick_ms"], abs=0.5)
     # The ratio printed is the one recorded.
     printed = float(re.search(r"ratio full/floor\s+([\d.]+)", text).group(1))
     assert printed == pytest.approx(figures["ratio_full_to_floor" + suffix], abs=0.006)
@@ -71,3 +74,14 @@ def test_bad_arguments_are_one_clear_error(bench_file, args, words):
     with pytest.raises(CommandError, match=words):
         run(*args)
     assert not bench_file.exists()
+
+
+def test_the_yardstick_is_the_fastest_round_in_milliseconds(monkeypatch):
+    """``yardstick_ms``: each round timed, the fastest kept, in ms."""
+    import time
+
+    ticks = iter([10.0, 10.3, 20.0, 20.1, 30.0, 30.2])  # rounds of 0.3, 0.1 and 0.2 s
+    monkeypatch.setattr(time, "perf_counter", lambda: next(ticks))
+    assert bench_record.yardstick_ms(rounds=3) == pytest.approx(100.0)
+    with pytest.raises(StopIteration):  # every round was timed: no tick left
+        next(ticks)

@@ -5,9 +5,10 @@ as the desk user ``bench-desk`` over HTTP (the CSRF cookie and token, the
 sign-in form), and for each of ``--units`` units checks it out and then in
 through the forms, timing the check-in from the POST to its answer, the
 verdict page (read whole).  Prints p50, p95 and max, the
-machine's load, and the queries of one more check-in counted in this process
+machine's load and speed (``bench_record.yardstick_ms``), and the queries of one more check-in counted in this process
 through Django's test client; records ``checkin_p50_ms_<vendor>``,
-``checkin_p95_ms_<vendor>`` and ``checkin_queries_<vendor>`` (vendor
+``checkin_p95_ms_<vendor>``, ``checkin_queries_<vendor>`` and
+``checkin_yardstick_ms_<vendor>`` (vendor
 ``sqlite`` or ``postgres``) in ``var/bench.json``.  Checks nothing: the
 budget (p95 under 50 ms at 10,000 units) is read from the figures.
 
@@ -205,6 +206,7 @@ class Command(BaseCommand):
         # The forecast table as the run found it (PostgreSQL): its dead row
         # versions slow the count that places a held unit among the priorities.
         state, dead = bench_record.table_state(UnitForecast)
+        yardstick = [bench_record.yardstick_ms()]
         port = _spare_port()
         with tempfile.TemporaryDirectory(prefix="bench-desk-") as var_dir:
             server = self._start(port, options["workers"], var_dir)
@@ -224,6 +226,7 @@ class Command(BaseCommand):
         stages = self._stages(user, local_units[1:]) if len(local_units) > 1 else None
         touched = [unit_id for unit_id, _, _ in picked]
         self._restore(touched)
+        yardstick.append(bench_record.yardstick_ms())
         load = os.getloadavg()
         p50, p95 = statistics.median(times), _p95(times)
         verdict = "ok" if p95 < P95_BUDGET_MS else f"OVER by {100 * (p95 / P95_BUDGET_MS - 1):.0f} %"
@@ -235,12 +238,15 @@ class Command(BaseCommand):
         self.stdout.write(f"Queries per check-in: {queries} for the POST with its verdict, {verdict_queries} for a "
                           f"reload of the verdict (counted in this process); load average "
                           f"{load[0]:.2f} {load[1]:.2f} {load[2]:.2f}")
+        self.stdout.write(f"Machine yardstick (bench_record.yardstick_ms, a fixed pure-Python task; lower is faster): "
+                          f"{yardstick[0]:.0f} ms before, {yardstick[1]:.0f} ms after")
         if stages:
             self.stdout.write(stages)
         if state:
             self.stdout.write(f"At the start: {state}")
         bench_record.record(**{f"checkin_p50_ms_{vendor}": p50, f"checkin_p95_ms_{vendor}": p95,
                                f"checkin_queries_{vendor}": queries, f"checkin_load_{vendor}": round(load[0], 2),
+                               f"checkin_yardstick_ms_{vendor}": statistics.mean(yardstick),
                                **({f"checkin_forecast_dead_rows_{vendor}": dead} if dead is not None else {})})
 
     def _start(self, port, workers, var_dir):

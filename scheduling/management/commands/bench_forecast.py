@@ -21,7 +21,7 @@ from django.test.utils import CaptureQueriesContext
 from fleet.models import Unit
 from scheduling import histogram as H
 from scheduling.batches import fleet_histories_sync, fleet_refresh
-from scheduling.bench_record import record, table_state, vacuumed
+from scheduling.bench_record import record, table_state, vacuumed, yardstick_ms
 from scheduling.models import ThermalHistory, UnitForecast
 from scheduling.parts import count_rows, read_rows, rows_sql
 from scheduling.services import forecast_refresh, forecast_tables_vacuum
@@ -73,6 +73,10 @@ class Command(BaseCommand):
         w = self.stdout.write
         w(f"database            {connection.vendor}")
         w(f"units               {units}")
+        yardstick = yardstick_ms()
+        w(f"machine yardstick   {yardstick:8.0f} ms  (bench_record.yardstick_ms: a fixed pure-Python task, to read "
+          f"the figures of different runs against; lower is faster)")
+        record(yardstick_ms=yardstick)
         t0 = time.perf_counter()
         synced = fleet_histories_sync()
         if synced["changed"] or synced["repacked"]:
