@@ -245,7 +245,9 @@ def priorities_place(run):
                 f"UPDATE {t} SET {qn('priority')} = 1 + ({needs} > %s) + ({needs} = %s AND {tied} AND {unit} <> %s) "
                 f"WHERE {qn('unit_id')} = %s RETURNING {qn('priority')}",
                 [score, score, *tied_params, unit_id, unit_id])
-            run.places[unit_id] = cursor.fetchone()[0]  # for ``rows_as_stored``
+            placed = cursor.fetchone()  # the place given, for ``rows_as_stored``
+            if placed is not None:
+                run.places[unit_id] = placed[0]
     transaction.on_commit(_queue_ranking)
 
 
