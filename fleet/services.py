@@ -165,7 +165,7 @@ def rental_open(*, unit_id, job_ref, out_at=None, expected_ambient_c=25.0, user=
 
 @transaction.atomic(savepoint=False)
 def rental_close(*, unit_id, in_at=None, venue_ambient_c, powered_hours=None, meter_reading_h=None,
-                 reported_faults="", user=None):
+                 reported_faults="", user=None, unit_written=True):
     """Record a unit coming back from its hire.
 
     Give either ``powered_hours`` (an estimate) or ``meter_reading_h`` (the
@@ -178,6 +178,12 @@ def rental_close(*, unit_id, in_at=None, venue_ambient_c, powered_hours=None, me
     No savepoint of its own (two round trips fewer on the desk's check-in):
     inside a caller's transaction a refusal fails the whole of it, as the
     check-in workflow wants.
+
+    ``unit_written=False``: the unit row (locked, returned as ``rental.unit``
+    with its new status, meter, hold reason and records version) is left for
+    the caller's transaction to write once with ``unit_write_closed``, after
+    it has decided whether the unit goes on hold (the check-in: one write and
+    one audit record instead of two).
     """
     # The open hire and its unit, both locked, in one query.
     rental = (Rental.objects.select_for_update(of=("self", "unit")).select_related("unit")
@@ -232,11 +238,23 @@ def rental_close(*, unit_id, in_at=None, venue_ambient_c, powered_hours=None, me
         unit.hour_meter_h = meter_reading_h
     unit.status = Unit.Status.HOLD if rental.reported_faults else Unit.Status.AVAILABLE
     unit.hold_reason = f"Fault reported on return: {rental.reported_faults}"[:300] if rental.reported_faults else ""
-    version = unit.records_version
-    unit.records_version = F("records_version") + 1
-    _by(unit, user).save(update_fields=["status", "hour_meter_h", "records_version", "hold_reason"])
-    unit.records_version = version + 1  # the row is locked: no one else moved it
+    # The row is locked: no one else moves its records version.
+    unit.records_version += 1
+    if unit_written:
+        unit_write_closed(unit, user=user)
     return rental
+
+
+#: The unit's fields a hire's close changes (``rental_close``).
+CLOSED_UNIT_FIELDS = ["status", "hour_meter_h", "records_version", "hold_reason"]
+
+
+def unit_write_closed(unit, *, user=None):
+    """Write the unit row ``rental_close(unit_written=False)`` left to the
+    caller (locked in the caller's transaction), with its audit record."""
+    if not transaction.get_connection().in_atomic_block:
+        raise ServiceError("unit_write_closed needs the caller's transaction that locked the unit.")
+    _by(unit, user).save(update_fields=CLOSED_UNIT_FIELDS)
 
 
 @transaction.atomic

@@ -155,22 +155,38 @@ def rental_check_in(*, unit_id, in_at=None, venue_ambient_c, powered_hours=None,
     as just stored (built from the refresh, not read back; None when the unit
     has none), for the verdict.
     """
+    # The unit row is locked here and written once below, with the status the
+    # forecast decides (one write and one audit record, not "available" and
+    # then "hold").
     rental = register.rental_close(unit_id=unit_id, in_at=in_at, venue_ambient_c=venue_ambient_c,
                                    powered_hours=powered_hours, meter_reading_h=meter_reading_h,
-                                   reported_faults=reported_faults, user=user)
+                                   reported_faults=reported_faults, user=user, unit_written=False)
+    unit = rental.unit
+    written = []
+
+    def write_unit():
+        register.unit_write_closed(unit, user=user)
+        written.append(True)
+
     # Only the hire closed just above changed the unit's records: the sync
     # adds it to the history and the packed recent hires (the snapshot dates
-    # and fitted parts stand).
-    synced = thermal_check_in(rental.unit, rental)
+    # and fitted parts stand).  Its general way reads the unit's row from the
+    # table: written first.
+    synced = thermal_check_in(unit, rental, before_general=write_unit)
     # Synced just above: the refresh need not look again, nor read again the
-    # history just written and the home's temperatures just read.
+    # unit's row, the history just written and the home's temperatures just read.
     run = forecast_refresh(unit_ids=[unit_id], today=timezone.localdate(rental.in_at), sync=False, known=synced)
-    if (rental.unit.status == Unit.Status.AVAILABLE and run.fleet.n_units
+    if (unit.status == Unit.Status.AVAILABLE and run.fleet.n_units
             and run.result.status[0] in ("due", "overdue")):
         reasons = run.result.reasons[0]  # what the refresh just stored
-        # The unit row rental_close locked in this transaction: not looked up again.
-        register.unit_hold_locked(rental.unit, user=user, reason=(
-            f"The forecast says {run.result.status[0]} for a recap" + (f": {reasons[0]}" if reasons else ".")))
+        reason = f"The forecast says {run.result.status[0]} for a recap" + (f": {reasons[0]}" if reasons else ".")
+        if written:
+            # The unit row rental_close locked in this transaction: not looked up again.
+            register.unit_hold_locked(unit, user=user, reason=reason)
+        else:
+            unit.status, unit.hold_reason = Unit.Status.HOLD, reason[:300]
+    if not written:
+        write_unit()
     rental.forecast_now = rows_as_stored(run, [unit_id]).get(unit_id)
     return rental
 

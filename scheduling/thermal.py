@@ -347,7 +347,7 @@ def _extend_with(unit, history, rentals, temps, internal_rise_k):
     return True
 
 
-def thermal_check_in(unit, rental):
+def thermal_check_in(unit, rental, *, before_general=None):
     """The check-in's sync of the one unit whose hire ``rental`` the caller's
     transaction has just closed (``fleet.services.rental_close``, which
     returns ``unit`` locked and one step of ``records_version`` on).
@@ -361,7 +361,11 @@ def thermal_check_in(unit, rental):
     sync would write it (a test holds them equal).  Returns, when the short
     way was taken, what the forecast that follows would read again: a
     ``CheckInSync`` (the history as written, the home's monthly
-    temperatures); else None."""
+    temperatures); else None.
+
+    ``before_general``: called before the general way, which reads the
+    unit's row from the table (the check-in writes the unit row there
+    first, when it has left it for later)."""
     if not transaction.get_connection().in_atomic_block:
         raise ValueError("thermal_check_in needs the caller's transaction that closed the hire.")
     version = unit.records_version
@@ -371,12 +375,10 @@ def thermal_check_in(unit, rental):
             or history.parts_version != version - 1 or not P.is_pack(history.parts)
             or not R.is_pack(history.recent) or rental.in_at is None
             or history.basis != exposure_basis(unit, history.rise_k)):
-        thermal_sync(unit_ids=[unit.pk], until=rental.in_at, hire_closed=True)
-        return None
+        return _general_way(unit, rental, before_general)
     temps = location_monthly_temps([unit.home_location_id])[unit.home_location_id]
     if not _extend_with(unit, history, [rental], temps, history.rise_k):
-        thermal_sync(unit_ids=[unit.pk], until=rental.in_at, hire_closed=True)
-        return None
+        return _general_way(unit, rental, before_general)
     # The recent hires: those of the pack still within KEEP_DAYS, then this one
     # (what thermal_repack reads from the hires table, without reading it).
     complete_from = (timezone.now() - dt.timedelta(days=R.KEEP_DAYS)).timestamp() / 86400.0
@@ -400,6 +402,13 @@ def unit_row_of(unit):
         return None
     return (unit.pk, unit.asset_tag, unit.gear_model_id, unit.home_location_id, unit.year_made,
             unit.joined_on.isoformat(), unit.records_version)
+
+
+def _general_way(unit, rental, before_general):
+    if before_general is not None:
+        before_general()
+    thermal_sync(unit_ids=[unit.pk], until=rental.in_at, hire_closed=True)
+    return None
 
 
 @dataclass

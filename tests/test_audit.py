@@ -34,3 +34,31 @@ def test_history_is_still_written_and_read_per_unit():
     assert records[-1].hold_reason == "Loose mains inlet" and records[-1].history_type == "~"
     # An instance's history is its own: the other unit's has no hold.
     assert {r.status for r in other.history.all()} == {Unit.Status.AVAILABLE}
+
+
+@pytest.mark.django_db(transaction=True)
+def test_a_check_in_the_forecast_holds_is_one_audit_record_not_two():
+    """The check-in writes the unit once, with the status the forecast
+    decides: one audit record ("on hold", with the reason), where there used
+    to be "available" and then "on hold"; its records version one step on."""
+    import datetime as dt
+
+    from django.utils import timezone
+
+    from front.workflows import rental_check_in, rental_check_out
+    from scheduling.services import forecast_refresh
+
+    location, gear_model = make_location(), make_gear_model()
+    old = make_unit(gear_model, location, asset_tag="NMB-0311", year_made=1962, joined_on=dt.date(2001, 5, 1))
+    forecast_refresh()
+    rental_check_out(unit_id=old.pk, job_ref="JOB-A", out_at=timezone.now() - dt.timedelta(days=2),
+                     override_reason="Test hire")
+    before = old.history.count()
+    version = Unit.objects.get(pk=old.pk).records_version
+    rental_check_in(unit_id=old.pk, venue_ambient_c=29.0, powered_hours=14.0)
+    added = list(Unit.objects.get(pk=old.pk).history.order_by("history_id"))[before:]
+    assert [r.status for r in added] == [Unit.Status.HOLD]
+    assert added[0].hold_reason.startswith("The forecast says")
+    held = Unit.objects.get(pk=old.pk)
+    assert held.status == Unit.Status.HOLD and held.hold_reason == added[0].hold_reason
+    assert held.records_version == version + 1

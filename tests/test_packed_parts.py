@@ -190,8 +190,8 @@ def _check_in_both_ways(monkeypatch, unit_id, out, *, hires_before=()):
     took = []
     short_way = thermal.thermal_check_in
 
-    def spied(unit, rental):
-        took.append(short_way(unit, rental))
+    def spied(unit, rental, **kwargs):
+        took.append(short_way(unit, rental, **kwargs))
         return took[-1]
 
     monkeypatch.setattr(workflows, "thermal_check_in", spied)
@@ -211,7 +211,8 @@ def _check_in_both_ways(monkeypatch, unit_id, out, *, hires_before=()):
     except Undo:
         pass
     # The reference: every step of the sync, nothing skipped.
-    def full_sync(unit, rental):
+    def full_sync(unit, rental, *, before_general):
+        before_general()  # the unit row written first, as the general way has it
         thermal_sync(unit_ids=[unit.pk], until=rental.in_at)
         return None  # nothing known: the forecast reads everything again
 

@@ -9,8 +9,9 @@ lets go out again (20; 61 before the first cut):
 - 4  the session, the user, the user's roles, the unit by its tag (the form);
 - 1  BEGIN (and COMMIT at the end: 1);
 - 5  closing the hire (``fleet.services.rental_close``, no savepoint of its
-     own): the open hire and its unit locked (one query), the hire and the
-     unit written, each with its history row;
+     own): the open hire and its unit locked (one query), the hire written
+     with its history row; the unit written with its history row once, after
+     the forecast, with the status it decides;
 - 3  the thermal history (``scheduling.thermal.thermal_check_in``: only this
      hire changed the unit's records): the history locked (with its gear
      model's internal rise), the home location, the history written once
@@ -26,9 +27,9 @@ lets go out again (20; 61 before the first cut):
      the table).  The verdict is worded from the row as stored, built from
      the run (``scheduling.store.rows_as_stored``): not read back.
 
-A unit the forecast holds for a recap (23; 70 before) adds its place among the
-priorities (one write with the count inside) and the hold (the unit row
-``rental_close`` locked, written with its history row).  The fleet's
+A unit the forecast holds for a recap (21; 70 before) adds its place among the
+priorities (one write with the count inside; the hold goes into the one
+write of the unit row).  The fleet's
 renumbering is queued for a worker after the commit: not the request's.
 The verdict's own address, as a reload asks for it (5): the session, the
 user, the roles, the hire with its unit, the forecast.
@@ -52,7 +53,7 @@ pytestmark = pytest.mark.django_db(transaction=True)
 
 #: Ceilings (see the module's docstring for what they are).
 MAY_GO_OUT = 20
-HELD_BY_FORECAST = 23
+HELD_BY_FORECAST = 21
 VERDICT_PAGE = 5
 
 
