@@ -10,6 +10,7 @@ Stored units as in ``fleet.models``: ohm, Hz, uF, uA, V, mA.
 from django.conf import settings
 from django.db import models
 from django.db.models import Q
+
 from .audit import AuditTrail
 
 

@@ -16,8 +16,8 @@ from django.core.validators import MaxValueValidator, MinValueValidator, RegexVa
 from django.db import models
 from django.db.models import F, Q
 from django.utils import timezone
-from .audit import AuditTrail
 
+from .audit import AuditTrail
 from .dates import EARLIEST_DATE, LATEST_DATE, before_unit, outside_register  # noqa: F401  (imported from here too)
 
 RATED_TEMP_MIN_C = -55.0

@@ -5,6 +5,7 @@ over a horizon, damage, calendar age, storage).  Part of the register
 from django.core.validators import MaxValueValidator, MinValueValidator
 from django.db import models
 from django.db.models import Q
+
 from .audit import AuditTrail
 
 

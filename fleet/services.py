@@ -171,9 +171,10 @@ def rental_close(*, unit_id, in_at=None, venue_ambient_c, powered_hours=None, me
     Give either ``powered_hours`` (an estimate) or ``meter_reading_h`` (the
     unit's hour meter now; powered hours are the difference from the last
     reading).  A unit without an earlier reading may be given both: the
-    estimate counts, and the reading is kept as its first.  Powered hours may not exceed the time out; the meter may not run
-    backwards.  A unit with reported faults goes on hold for the bench, any
-    other becomes available.  Marks the unit's records changed.
+    estimate counts, and the reading is kept as its first.  Powered hours
+    may not exceed the time out; the meter may not run backwards.  A unit
+    with reported faults goes on hold for the bench, any other becomes
+    available.  Marks the unit's records changed.
 
     No savepoint of its own (two round trips fewer on the desk's check-in):
     inside a caller's transaction a refusal fails the whole of it, as the

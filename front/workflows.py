@@ -162,17 +162,11 @@ def rental_check_in(*, unit_id, in_at=None, venue_ambient_c, powered_hours=None,
                                    powered_hours=powered_hours, meter_reading_h=meter_reading_h,
                                    reported_faults=reported_faults, user=user, unit_written=False)
     unit = rental.unit
-    written = []
-
-    def write_unit():
-        register.unit_write_closed(unit, user=user)
-        written.append(True)
-
     # Only the hire closed just above changed the unit's records: the sync
     # adds it to the history and the packed recent hires (the snapshot dates
-    # and fitted parts stand).  Its general way reads the unit's row from the
-    # table: written first.
-    synced = thermal_check_in(unit, rental, before_general=write_unit)
+    # and fitted parts stand).  Its general way (it then returns None) reads
+    # the unit's row from the table: written first.
+    synced = thermal_check_in(unit, rental, before_general=lambda: register.unit_write_closed(unit, user=user))
     # Synced just above: the refresh need not look again, nor read again the
     # unit's row, the history just written and the home's temperatures just read.
     run = forecast_refresh(unit_ids=[unit_id], today=timezone.localdate(rental.in_at), sync=False, known=synced)
@@ -180,13 +174,13 @@ def rental_check_in(*, unit_id, in_at=None, venue_ambient_c, powered_hours=None,
             and run.result.status[0] in ("due", "overdue")):
         reasons = run.result.reasons[0]  # what the refresh just stored
         reason = f"The forecast says {run.result.status[0]} for a recap" + (f": {reasons[0]}" if reasons else ".")
-        if written:
+        if synced is None:  # written already: the hold is a second write
             # The unit row rental_close locked in this transaction: not looked up again.
             register.unit_hold_locked(unit, user=user, reason=reason)
         else:
             unit.status, unit.hold_reason = Unit.Status.HOLD, reason[:300]
-    if not written:
-        write_unit()
+    if synced is not None:
+        register.unit_write_closed(unit, user=user)
     rental.forecast_now = rows_as_stored(run, [unit_id]).get(unit_id)
     return rental
 

@@ -259,8 +259,8 @@ def rows_as_stored(run, unit_ids):
     """{unit id: UnitForecast}: the rows ``_store`` and
     ``_store_unforecastable`` wrote for ``unit_ids`` from ``run``, as
     unsaved instances built from the run (not read back), with the places
-    ``priorities_place`` gave (``run.places``) where it placed them.  A unit of neither has no
-    row (retired: its row was removed)."""
+    ``priorities_place`` gave (``run.places``) where it placed them.  A unit
+    of neither has no row (retired: its row was removed)."""
     fa, r = run.fleet, run.result
     now = run.stored_at
     horizon = int(run.policy.horizon_days)
@@ -274,16 +274,12 @@ def rows_as_stored(run, unit_ids):
         u, s, due, risk, ratio, reform, _, positions, act_by, priority, hire_risk, score, masks = (
             _store_values(run, packed, roles, slice(k, k + 1)))
         unit_id = int(u[0])
-
-        def number(x):
-            return float(x[0])
-
         rows[unit_id] = UnitForecast(
-            unit_id=unit_id, computed_at=now, status=s[0], due_date=_day_dates(due)[0], risk=number(risk),
-            horizon_days=horizon, max_damage_ratio=number(ratio), storage_reform=bool(reform[0]),
+            unit_id=unit_id, computed_at=now, status=s[0], due_date=_day_dates(due)[0], risk=float(risk[0]),
+            horizon_days=horizon, max_damage_ratio=float(ratio[0]), storage_reform=bool(reform[0]),
             reasons=list(r.reasons[k]), positions=positions[0], act_by=_day_dates(act_by)[0],
-            priority=places.get(unit_id, int(priority[0]) or None), hire_risk=number(hire_risk), score=number(score),
-            action_roles=int(masks[0]))
+            priority=places.get(unit_id, int(priority[0]) or None), hire_risk=float(hire_risk[0]),
+            score=float(score[0]), action_roles=int(masks[0]))
     for unit in run.unforecastable:
         if unit.unit_id in unit_ids:
             rows[unit.unit_id] = _unforecastable_row(run, unit, now)

@@ -2,12 +2,17 @@
 (``fleet.audit``): the same class on every access, the records still
 written and read as before."""
 
+import datetime as dt
+
 import pytest
+from django.utils import timezone
 from simple_history.manager import HistoryManager
 
 from fleet.audit import KeptHistoryManager
 from fleet.models import Rental, Unit
 from fleet.services import unit_hold
+from front.workflows import rental_check_in, rental_check_out
+from scheduling.services import forecast_refresh
 from tests.base import make_gear_model, make_location, make_unit
 
 
@@ -41,13 +46,6 @@ def test_a_check_in_the_forecast_holds_is_one_audit_record_not_two():
     """The check-in writes the unit once, with the status the forecast
     decides: one audit record ("on hold", with the reason), where there used
     to be "available" and then "on hold"; its records version one step on."""
-    import datetime as dt
-
-    from django.utils import timezone
-
-    from front.workflows import rental_check_in, rental_check_out
-    from scheduling.services import forecast_refresh
-
     location, gear_model = make_location(), make_gear_model()
     old = make_unit(gear_model, location, asset_tag="NMB-0311", year_made=1962, joined_on=dt.date(2001, 5, 1))
     forecast_refresh()

@@ -151,6 +151,7 @@ def _returned_page(request, rental):
     form = CheckInForm()
     form.focus()
     response = page(request, "front/check_in.html", {
-        "form": form, "verdict": _verdict(rental, rental.forecast_now), "open_rental": None, "meter": None, "returned_url": url})
+        "form": form, "verdict": _verdict(rental, rental.forecast_now), "open_rental": None, "meter": None,
+        "returned_url": url})
     response["Content-Location"] = url
     return response

@@ -128,10 +128,10 @@ def test_a_check_in_that_holds_the_unit_for_a_recap_stays_within_its_queries(des
 #: form's weighing of the forecast and the policy; then the workflow (the
 #: forecast and policy read again inside its transaction, the unit locked,
 #: its open and last hires, the hire written with its history row, the unit
-#: written with its history row; no savepoint of the service's own).  The references and the table's
-#: constraints are not checked again through Django's model validation (14
-#: queries more before): the service holds them under the unit's lock and
-#: the database on save.
+#: written with its history row; no savepoint of the service's own).  The
+#: references and the table's constraints are not checked again through
+#: Django's model validation (14 queries more before): the service holds
+#: them under the unit's lock and the database on save.
 CHECK_OUT = 17
 
 
