@@ -104,7 +104,8 @@ MIDDLEWARE = [
 # locking out a whole office behind one address.
 AUTHENTICATION_BACKENDS = [
     "axes.backends.AxesStandaloneBackend",
-    "django.contrib.auth.backends.ModelBackend",
+    # Django's ModelBackend, the user's roles read with the user (one query a request).
+    "fleet.roles.RolesBackend",
 ]
 AXES_FAILURE_LIMIT = env_int("RECAP_LOGIN_FAILURE_LIMIT", 5)
 AXES_COOLOFF_TIME = timedelta(minutes=env_int("RECAP_LOGIN_COOLOFF_MINUTES", 15))

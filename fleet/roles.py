@@ -6,7 +6,10 @@ the register and the engine, and of the sign-in lockouts (to release one
 early).  A superuser counts as every role.
 """
 
+from django.contrib.auth import get_user_model
+from django.contrib.auth.backends import ModelBackend
 from django.contrib.auth.models import Group, Permission
+from django.db.models import Exists, OuterRef
 
 DESK = "desk"
 TECHNICIAN = "technician"
@@ -42,6 +45,8 @@ def groups_after_migrate(sender, **kwargs):
 
 
 def user_roles(user):
+    """The roles ``user`` holds (a set of ``ROLES``): read once per request,
+    with the user when ``RolesBackend`` loaded it."""
     if not user.is_authenticated:
         return set()
     if user.is_superuser:
@@ -56,3 +61,21 @@ def user_roles(user):
 def has_role(user, *roles):
     """True if the user holds any of ``roles``."""
     return bool(user_roles(user) & set(roles))
+
+
+class RolesBackend(ModelBackend):
+    """Django's own sign-in by username and password; the signed-in user of
+    each request is read with the roles they hold in the same query (one
+    ``EXISTS`` per role), where Django would read the user, then the page
+    their groups.  Read on every request, as the groups would be: a role a
+    manager grants or takes away holds from the user's next page."""
+
+    def get_user(self, user_id):
+        user_model = get_user_model()
+        memberships = user_model.groups.through.objects.filter(user_id=OuterRef("pk"))
+        held = {f"holds_role_{role}": Exists(memberships.filter(group__name=role)) for role in ROLES}
+        user = user_model._default_manager.annotate(**held).filter(pk=user_id).first()
+        if user is None or not self.user_can_authenticate(user):
+            return None
+        user._recap_roles = {role for role in ROLES if getattr(user, f"holds_role_{role}")}
+        return user

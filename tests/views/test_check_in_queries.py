@@ -4,9 +4,10 @@ hottest path shows up here (`manage.py bench_desk` prints the time).
 Outside a test transaction, as a real request runs (``transaction=True``); the
 same count on SQLite and PostgreSQL.  The answer to the POST is the verdict
 itself (no redirect and second request).  A check-in of a unit the forecast
-lets go out again (20; 61 before the first cut):
+lets go out again (19; 61 before the first cut):
 
-- 4  the session, the user, the user's roles, the unit by its tag (the form);
+- 3  the session, the user with the roles they hold (``fleet.roles.RolesBackend``:
+     one query), the unit by its tag (the form);
 - 1  BEGIN (and COMMIT at the end: 1);
 - 5  closing the hire (``fleet.services.rental_close``, no savepoint of its
      own): the open hire and its unit locked (one query), the hire written
@@ -27,12 +28,12 @@ lets go out again (20; 61 before the first cut):
      the table).  The verdict is worded from the row as stored, built from
      the run (``scheduling.store.rows_as_stored``): not read back.
 
-A unit the forecast holds for a recap (21; 70 before) adds its place among the
+A unit the forecast holds for a recap (20; 70 before) adds its place among the
 priorities (one write with the count inside; the hold goes into the one
 write of the unit row).  The fleet's
 renumbering is queued for a worker after the commit: not the request's.
-The verdict's own address, as a reload asks for it (5): the session, the
-user, the roles, the hire with its unit, the forecast.
+The verdict's own address, as a reload asks for it (4): the session, the
+user with their roles, the hire with its unit, the forecast.
 """
 
 import datetime as dt
@@ -52,9 +53,9 @@ from tests.base import make_gear_model, make_location, make_role_users, make_uni
 pytestmark = pytest.mark.django_db(transaction=True)
 
 #: Ceilings (see the module's docstring for what they are).
-MAY_GO_OUT = 20
-HELD_BY_FORECAST = 21
-VERDICT_PAGE = 5
+MAY_GO_OUT = 19
+HELD_BY_FORECAST = 20
+VERDICT_PAGE = 4
 
 
 @pytest.fixture
@@ -124,7 +125,7 @@ def test_a_check_in_that_holds_the_unit_for_a_recap_stays_within_its_queries(des
 
 
 #: The check-out POST (to its redirect), for a unit the forecast lets go out
-#: without a reason: the session, user, roles and the unit by its tag; the
+#: without a reason: the session, the user with their roles and the unit by its tag; the
 #: form's weighing of the forecast and the policy; then the workflow (the
 #: forecast and policy read again inside its transaction, the unit locked,
 #: its open and last hires, the hire written with its history row, the unit
@@ -132,7 +133,7 @@ def test_a_check_in_that_holds_the_unit_for_a_recap_stays_within_its_queries(des
 #: references and the table's constraints are not checked again through
 #: Django's model validation (14 queries more before): the service holds
 #: them under the unit's lock and the database on save.
-CHECK_OUT = 17
+CHECK_OUT = 16
 
 
 def test_a_check_out_stays_within_its_queries(desk, units):
