@@ -67,3 +67,23 @@ def test_signing_in_with_the_password_still_works_and_a_wrong_one_does_not(clien
     assert right.status_code == 302
     assert client.session["_auth_user_backend"] == "fleet.roles.RolesBackend"
     assert client.get(reverse("check_in")).status_code == 200
+
+
+def test_a_user_id_that_is_not_a_number_is_nobody(db):
+    make_user(DESK, username="clerk")
+    assert RolesBackend().get_user("1; DROP TABLE auth_user") is None
+    assert RolesBackend().get_user(None) is None
+
+
+def test_the_query_compiled_once_reads_each_user_by_their_own_id(db):
+    """The SQL is compiled once and reused: each user still comes back as
+    themselves, with their own roles."""
+    groups = ensure_groups()
+    people = {}
+    for k, held in enumerate([{DESK}, {TECHNICIAN}, set(), {DESK, MANAGER}]):
+        user = make_user(None, username=f"person-{k}")
+        user.groups.set([groups[r] for r in held])
+        people[user.pk] = held
+    for pk, held in reversed(list(people.items())):
+        loaded = RolesBackend().get_user(pk)
+        assert (loaded.pk, loaded.username, loaded._recap_roles) == (pk, f"person-{list(people).index(pk)}", held)
