@@ -118,6 +118,10 @@ AXES_VERBOSE = False
 # browser or cookies; a lockout by username holds whatever the browser.
 SILENCED_SYSTEM_CHECKS = ["axes.W006"]
 
+# Sessions in the database, as Django's own engine keeps them, read from SQL
+# compiled once per process (front/sessions.py).
+SESSION_ENGINE = "front.sessions"
+
 ROOT_URLCONF = "config.urls"
 
 TEMPLATES = [

@@ -9,8 +9,10 @@ early).  A superuser counts as every role.
 from django.contrib.auth import get_user_model
 from django.contrib.auth.backends import ModelBackend
 from django.contrib.auth.models import Group, Permission
-from django.core.exceptions import ImproperlyConfigured, ValidationError
+from django.core.exceptions import ValidationError
 from django.db.models import Exists, OuterRef
+
+from .compiled import compile_once
 
 DESK = "desk"
 TECHNICIAN = "technician"
@@ -100,10 +102,7 @@ class RolesBackend(ModelBackend):
             memberships = user_model.groups.through.objects.filter(user_id=OuterRef("pk"))
             held = {f"holds_role_{role}": Exists(memberships.filter(group__name=role)) for role in ROLES}
             marker = -7_301_002  # no user has it: where the user id goes among the parameters
-            query = user_model._default_manager.using(alias).annotate(**held).filter(pk=marker).query
-            sql, params = query.get_compiler(alias).as_sql()
-            at = [k for k, value in enumerate(params) if value == marker]
-            if len(at) != 1:
-                raise ImproperlyConfigured("RolesBackend could not place the user id in its query.")
-            cls._compiled[alias] = (sql, tuple(params), at[0])
+            query = user_model._default_manager.using(alias).annotate(**held).filter(pk=marker)
+            sql, params, (at,) = compile_once(query, alias, (marker,))
+            cls._compiled[alias] = (sql, params, at)
         return cls._compiled[alias]
