@@ -110,7 +110,7 @@ class DeskForm(PlainForm):
         tag = selectors.normalise_tag(self.cleaned_data["asset_tag"])
         if not tag:
             raise forms.ValidationError("Scan or type the unit's asset tag.")
-        unit = selectors.unit_by_tag(tag)
+        unit = selectors.unit_by_tag(tag, related=False)
         if unit is None:
             raise forms.ValidationError(f"No unit has the asset tag {tag}. Check the label and try again.")
         self.unit = unit

@@ -186,3 +186,20 @@ def test_a_unit_without_a_meter_reading_takes_its_first_with_the_hours(client, u
     assert out_unit.hour_meter_h == 4711
     verdict_page = client.get(response["Content-Location"]).content.decode()
     assert "meter 4,711 h" in verdict_page and "after 2 days" in verdict_page
+
+
+def test_the_form_finds_the_unit_by_its_tag_alone_and_an_error_page_still_names_its_model(client, users, out_unit):
+    """The desk's forms read the unit alone (no join to its gear model and home:
+    the workflow needs its id); a page that shows the form again with an
+    error still names the unit's gear model beside its tag."""
+    from django.db import connection
+    from django.test.utils import CaptureQueriesContext
+
+    client.force_login(users.desk)
+    with CaptureQueriesContext(connection) as ctx:
+        response = post(client, venue_ambient_c="86")  # refused: too hot
+    lookups = [q["sql"] for q in ctx.captured_queries if 'FROM "fleet_unit"' in q["sql"] and '"asset_tag" =' in q["sql"]]
+    assert lookups and all("JOIN" not in sql for sql in lookups), lookups
+    page = response.content.decode()
+    assert "hotter than 85" in page
+    assert f'<span class="tag">NMB-0001</span> {out_unit.gear_model}' in page
