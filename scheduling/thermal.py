@@ -47,16 +47,17 @@ from .models import HistogramSnapshot, ThermalHistory
 
 # --- location temperatures -------------------------------------------------
 
-def location_monthly_temps(location_ids):
+def location_monthly_temps(location_ids, *, locations=None):
     """Mean storage temperature for each calendar month, per location [degC].
 
     Returns ``{location_id: ndarray(12)}``.  Sample profiles average the
     imported samples by calendar month (one grouped query for all locations);
     a month with no samples takes the location's constant temperature, or the
-    mean of the months that have samples.
+    mean of the months that have samples.  ``locations``: the locations as
+    the caller read them (their id, profile and temperatures), not read again.
     """
-    location_ids = set(location_ids)
-    locations = list(Location.objects.filter(pk__in=location_ids))
+    if locations is None:
+        locations = list(Location.objects.filter(pk__in=set(location_ids)))
     sample_ids = [loc.pk for loc in locations if loc.profile == Location.Profile.SAMPLES]
     sample_means = defaultdict(dict)
     if sample_ids:
@@ -347,6 +348,10 @@ def _extend_with(unit, history, rentals, temps, internal_rise_k):
     return True
 
 
+#: The fields of a location its monthly temperatures come from.
+HOME_FIELDS = ("profile", "constant_temp_c", "monthly_temps_c")
+
+
 def thermal_check_in(unit, rental, *, before_general=None):
     """The check-in's sync of the one unit whose hire ``rental`` the caller's
     transaction has just closed (``fleet.services.rental_close``, which
@@ -356,7 +361,9 @@ def thermal_check_in(unit, rental, *, before_general=None):
     usual case: nothing else changed while it was out) only this hire is
     new: it is added to the history and to the packed recent hires read
     from the row itself, and the row is written once, without its unchanged
-    packed parts: three queries.  Anything else goes the general way,
+    packed parts: two queries (the history locked with its home's
+    temperatures, the history written), three for a home kept as dated
+    samples (their monthly means).  Anything else goes the general way,
     ``thermal_sync(hire_closed=True)``.  Either way the row ends as a full
     sync would write it (a test holds them equal).  Returns, when the short
     way was taken, what the forecast that follows would read again: a
@@ -369,14 +376,19 @@ def thermal_check_in(unit, rental, *, before_general=None):
     if not transaction.get_connection().in_atomic_block:
         raise ValueError("thermal_check_in needs the caller's transaction that closed the hire.")
     version = unit.records_version
+    # The history locked, read with its gear model's internal rise and its
+    # home's temperatures (one query; the home is not read again below).
     history = (ThermalHistory.objects.select_for_update(of=("self",))
-               .annotate(rise_k=F("unit__gear_model__internal_rise_k")).filter(unit_id=unit.pk).first())
+               .annotate(rise_k=F("unit__gear_model__internal_rise_k"), **{
+                   f"home_{name}": F(f"unit__home_location__{name}") for name in HOME_FIELDS})
+               .filter(unit_id=unit.pk).first())
     if (history is None or not isinstance(version, int) or history.records_version != version - 1
             or history.parts_version != version - 1 or not P.is_pack(history.parts)
             or not R.is_pack(history.recent) or rental.in_at is None
             or history.basis != exposure_basis(unit, history.rise_k)):
         return _general_way(unit, rental, before_general)
-    temps = location_monthly_temps([unit.home_location_id])[unit.home_location_id]
+    home = Location(pk=unit.home_location_id, **{name: getattr(history, f"home_{name}") for name in HOME_FIELDS})
+    temps = location_monthly_temps([home.pk], locations=[home])[home.pk]
     if not _extend_with(unit, history, [rental], temps, history.rise_k):
         return _general_way(unit, rental, before_general)
     # The recent hires: those of the pack still within KEEP_DAYS, then this one

@@ -321,3 +321,40 @@ def test_the_forecast_after_a_check_in_takes_what_the_check_in_wrote_instead_of_
             assert a == b, f.name
     assert read.accounted_day[0] == pytest.approx(rental.in_at.timestamp() / 86400.0, abs=1 / 86400)
     assert len(read_queries) - len(given_queries) == 3
+
+
+@pytest.mark.parametrize("profile", ["constant", "monthly", "samples"])
+def test_the_check_in_reads_its_home_with_the_history_and_the_same_temperatures(fleet, profile):
+    """The check-in's sync locks the history with its home's profile and
+    temperatures in one query; the monthly temperatures it hands on equal
+    those read afresh from the location (``location_monthly_temps``), for
+    each way a home keeps them."""
+    from django.db import connection, transaction
+    from django.test.utils import CaptureQueriesContext
+
+    from fleet import services as register
+    from fleet.models import Location, TemperatureSample
+    from scheduling.thermal import location_monthly_temps, thermal_check_in
+
+    home = fleet.location
+    if profile == "monthly":
+        Location.objects.filter(pk=home.pk).update(profile=profile, monthly_temps_c=[12.5 + m for m in range(12)])
+    elif profile == "samples":
+        Location.objects.filter(pk=home.pk).update(profile=profile, constant_temp_c=21.0)
+        TemperatureSample.objects.bulk_create([
+            TemperatureSample(location=home, taken_at=dt.datetime(2025, m, d, 12, tzinfo=dt.timezone.utc),
+                              temp_c=10.0 + m + d / 10) for m in (1, 2, 7) for d in (3, 17)])
+    unit_id = fleet.other.pk
+    out = timezone.now() - dt.timedelta(days=3)
+    workflows.rental_check_out(unit_id=unit_id, job_ref="J-5", out_at=out, override_reason="test hire")
+    with transaction.atomic():
+        rental = register.rental_close(unit_id=unit_id, in_at=out + dt.timedelta(days=2), venue_ambient_c=31.0,
+                                       powered_hours=20.0)
+        with CaptureQueriesContext(connection) as ctx:
+            known = thermal_check_in(rental.unit, rental)
+        assert known is not None  # the short way
+        fresh = location_monthly_temps([home.pk])
+    assert known.location_temps.keys() == fresh.keys() == {home.pk}
+    assert np.array_equal(known.location_temps[home.pk], fresh[home.pk])
+    assert not any('FROM "fleet_location"' in q["sql"] and "JOIN" not in q["sql"] for q in ctx.captured_queries)
+    assert len(ctx.captured_queries) == (3 if profile == "samples" else 2)
