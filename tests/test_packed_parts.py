@@ -179,6 +179,17 @@ def _engine_rows(unit_id):
     return history, snapshots, forecast
 
 
+def _check_out_and_close(unit_id, job_ref):
+    """Check ``unit_id`` out three days ago and close the hire two days
+    later, in the caller's transaction; returns the closed hire."""
+    from fleet import services as register
+
+    out = timezone.now() - dt.timedelta(days=3)
+    workflows.rental_check_out(unit_id=unit_id, job_ref=job_ref, out_at=out, override_reason="test hire")
+    return register.rental_close(unit_id=unit_id, in_at=out + dt.timedelta(days=2), venue_ambient_c=31.0,
+                                 powered_hours=20.0)
+
+
 def _check_in_both_ways(monkeypatch, unit_id, out, *, hires_before=()):
     """The engine's rows after a check-in of ``unit_id`` (out since ``out``)
     the check-in's own way, then (that undone) with a full sync instead;
@@ -293,16 +304,12 @@ def test_the_forecast_after_a_check_in_takes_what_the_check_in_wrote_instead_of_
     from django.db import connection, transaction
     from django.test.utils import CaptureQueriesContext
 
-    from fleet import services as register
     from scheduling.loader import unit_rows
     from scheduling.thermal import thermal_check_in
 
     unit_id = fleet.other.pk
-    out = timezone.now() - dt.timedelta(days=3)
-    workflows.rental_check_out(unit_id=unit_id, job_ref="J-4", out_at=out, override_reason="test hire")
     with transaction.atomic():
-        rental = register.rental_close(unit_id=unit_id, in_at=out + dt.timedelta(days=2), venue_ambient_c=31.0,
-                                       powered_hours=20.0)
+        rental = _check_out_and_close(unit_id, "J-4")
         known = thermal_check_in(rental.unit, rental)
         assert known is not None
         # The row as the engine reads it from the table, the new records version included.
@@ -332,7 +339,6 @@ def test_the_check_in_reads_its_home_with_the_history_and_the_same_temperatures(
     from django.db import connection, transaction
     from django.test.utils import CaptureQueriesContext
 
-    from fleet import services as register
     from fleet.models import Location, TemperatureSample
     from scheduling.thermal import location_monthly_temps, thermal_check_in
 
@@ -345,11 +351,8 @@ def test_the_check_in_reads_its_home_with_the_history_and_the_same_temperatures(
             TemperatureSample(location=home, taken_at=dt.datetime(2025, m, d, 12, tzinfo=dt.timezone.utc),
                               temp_c=10.0 + m + d / 10) for m in (1, 2, 7) for d in (3, 17)])
     unit_id = fleet.other.pk
-    out = timezone.now() - dt.timedelta(days=3)
-    workflows.rental_check_out(unit_id=unit_id, job_ref="J-5", out_at=out, override_reason="test hire")
     with transaction.atomic():
-        rental = register.rental_close(unit_id=unit_id, in_at=out + dt.timedelta(days=2), venue_ambient_c=31.0,
-                                       powered_hours=20.0)
+        rental = _check_out_and_close(unit_id, "J-5")
         with CaptureQueriesContext(connection) as ctx:
             known = thermal_check_in(rental.unit, rental)
         assert known is not None  # the short way
