@@ -10,6 +10,8 @@ import numpy as np
 from . import parameters as P
 from . import physics
 from .crossing import SEARCH_FUTURE_DAYS, _first_crossing
+from .physics.circuits import _inverter_rout, _inverter_v
+from .physics.drift import _capacitance_at, _esr_at
 
 #: Largest damage threshold a role may give [-].  Our choice: the drift laws
 #: are calibrated at D = 1 (endurance-test limits); beyond about twice that
@@ -116,14 +118,19 @@ def _pump_thresholds(fa, damage, rate, threshold, role, today_day):
             back = np.where(a > 0, d * np.maximum(a + t, 0.0) / a, 0.0)
         return np.maximum(np.where(t < 0, back, d + r * t), 0.0)
 
+    # The figures checked once here (a bad one raises as the public functions
+    # do); the search's many steps below use their unchecked kernels on them.
+    c_fly, c_res, e_fly, e_res = fa.capacitance_f[fly], fa.capacitance_f[res], fa.esr0_ohm[fly], fa.esr0_ohm[res]
+    physics.inverter_output_v(vin, load, f, c_fly, c_res, e_fly, e_res, rsw)
+    physics.esr_at_damage(e_fly, 0.0), physics.esr_at_damage(e_res, 0.0)
+    loss, ratio, k_fly = (np.float64(x) for x in (P.CAPACITANCE_LOSS_AT_END, P.ESR_RATIO_AT_END, P.FLYING_ESR_FACTOR))
+
     def margin_of(units, t):
-        a, b = fly[units], res[units]
         d_f, d_r = drifted(fly, age_fly, units, t), drifted(res, age_res, units, t)
-        v = physics.inverter_output_v(
-            vin[units], load[units], f[units], physics.capacitance_at_damage(fa.capacitance_f[a], d_f),
-            physics.capacitance_at_damage(fa.capacitance_f[b], d_r),
-            physics.esr_at_damage(fa.esr0_ohm[a], d_f), physics.esr_at_damage(fa.esr0_ohm[b], d_r), rsw[units])
-        return -v - vmin[units]  # >= 0 while the rail is deep enough
+        # physics.inverter_output_v with both parts drifted (capacitance_at_damage, esr_at_damage).
+        rout = _inverter_rout(f[units], _capacitance_at(c_fly[units], d_f, loss), _esr_at(e_fly[units], d_f, ratio),
+                              _esr_at(e_res[units], d_r, ratio), rsw[units], k_fly)
+        return -_inverter_v(vin[units], load[units], rout) - vmin[units]  # >= 0 while the rail is deep enough
 
     every = np.arange(fly.size)
     lo = -np.minimum(age_fly, age_res)           # the younger part is new here

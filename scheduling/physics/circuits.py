@@ -477,8 +477,55 @@ def threshold_reservoir(load_a, ripple_hz, c0_f, esr0_ohm, ripple_limit_v, peak_
     loss = _check_range("capacitance_loss_at_end", capacitance_loss_at_end, 0.0, 1.0)
     i, f, c0, e0 = (np.asarray(a, dtype=np.float64) for a in (load_a, ripple_hz, c0_f, esr0_ohm))
     ipk = P.PEAK_TO_LOAD_CURRENT_RATIO * i if peak_current_a is None else np.asarray(peak_current_a, dtype=np.float64)
+    inputs = (i, f, c0, e0, vmax, ipk, r, loss)
+    size = int(np.prod(shape))
+    if 0 < size <= RESERVOIR_MEMO_AT_MOST:
+        return _out(_reservoir_remembered(inputs, shape))
+    return _out(_solve_reservoir(inputs, shape))
+
+
+#: ``threshold_reservoir`` remembers the answers of calls of at most this many
+#: problems (a unit's reservoirs at the desk), by their inputs; a larger call
+#: (a fleet refresh) solves them all at once and remembers nothing.
+RESERVOIR_MEMO_AT_MOST = 64
+#: Most answers remembered; the memory is emptied when it is full.
+RESERVOIR_MEMO_SIZE = 4096
+_reservoir_memo = {}
+
+
+def _solve_reservoir(inputs, shape):
+    """D* of each reservoir problem: the bisection of ``threshold_reservoir``
+    on its checked float arrays (load, ripple frequency, C0, ESR0, ripple
+    limit, peak current, ESR ratio and capacitance loss at the end), broadcast
+    to ``shape``."""
+    i, f, c0, e0, vmax, ipk, r, loss = inputs
 
     def margin(d):
         return vmax - _ripple_vpp(i, f, _capacitance_at(c0, d, loss), _esr_at(e0, d, r), ipk)
 
-    return _bisect_threshold(margin, shape)
+    return np.asarray(_bisect_threshold(margin, shape), dtype=np.float64).reshape(shape)
+
+
+def _reservoir_remembered(inputs, shape):
+    """``_solve_reservoir`` for a few problems, each answered from the
+    process's memory of earlier calls when its eight inputs are the same.
+
+    The threshold is a pure function of those inputs, and the bisection
+    treats every problem on its own (element-wise steps, a bracket per
+    problem), so an answer remembered is the one solving it again gives: the
+    units of one gear model share their reservoirs' design figures and, while
+    original, their parts' ratings, and the desk's next check-in of such a unit
+    skips the search.  A test holds the remembered answers equal to fresh ones."""
+    columns = [np.broadcast_to(a, shape).reshape(-1).tolist() for a in inputs]
+    keys = list(zip(*columns))
+    found = [_reservoir_memo.get(key) for key in keys]
+    missing = [k for k, value in enumerate(found) if value is None]
+    if missing:
+        sub = tuple(np.array([columns[j][k] for k in missing]) for j in range(len(inputs)))
+        solved = _solve_reservoir(sub, (len(missing),)).tolist()
+        if len(_reservoir_memo) + len(missing) > RESERVOIR_MEMO_SIZE:
+            _reservoir_memo.clear()
+        for k, value in zip(missing, solved):
+            found[k] = value
+            _reservoir_memo[keys[k]] = value
+    return np.array(found, dtype=np.float64).reshape(shape)

@@ -359,8 +359,17 @@ def unit_conditional_hazard(hazard_now, hazard_later, weibull_shape, frailty_sig
     if np.any(h1 < h0):
         raise ValueError("hazard_later must not be below hazard_now")
     sy = b * sz
-    with np.errstate(invalid="ignore"):
-        out = frailty_log_laplace(h0, sy) - frailty_log_laplace(h1, sy)
+    if sy.ndim == 0:
+        # One sigma: both ends in one pass (element by element, as two would).
+        _check_range("hazard_sigma", sy, 0.0, P.FRAILTY_HAZARD_SIGMA_MAX)
+        shape = np.broadcast_shapes(h0.shape, h1.shape)
+        both = np.concatenate((np.broadcast_to(h0, shape).reshape(-1), np.broadcast_to(h1, shape).reshape(-1)))
+        now, later = np.split(_log_laplace_one_sigma(both, float(sy), table=True), 2)
+        with np.errstate(invalid="ignore"):
+            out = now.reshape(shape) - later.reshape(shape)
+    else:
+        with np.errstate(invalid="ignore"):
+            out = frailty_log_laplace(h0, sy) - frailty_log_laplace(h1, sy)
     out = np.where(np.isinf(h1), np.inf, out)
     return _out(np.maximum(out, 0.0))
 

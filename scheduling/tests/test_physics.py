@@ -521,6 +521,43 @@ def test_threshold_reservoir_round_trip():
     assert ph.threshold_reservoir(0.0, 100.0, 1000e-6, 0.1, 0.5) == np.inf
 
 
+def test_threshold_reservoir_remembered_answers_equal_fresh_ones():
+    """A desk-sized call answers from the process's memory of earlier calls:
+    bit for bit what solving again gives, whatever the batch; each answer
+    also checked against scipy.optimize.brentq on the ripple equation
+    (Vpp = I/(f C(D)) + Ipk ESR(D), design brief §5, common practice)."""
+    from scipy import optimize
+
+    from scheduling.physics import circuits
+
+    rng = np.random.default_rng(60062)
+    n = 40
+    load, hz = rng.uniform(0.02, 0.5, n), rng.choice([100.0, 120.0], n)
+    c0, e0 = rng.uniform(220e-6, 4700e-6, n), rng.uniform(0.02, 0.4, n)
+    limit = rng.uniform(0.3, 3.0, n)
+    inputs = tuple(np.asarray(a, dtype=float) for a in (load, hz, c0, e0, limit))
+    ipk = P.PEAK_TO_LOAD_CURRENT_RATIO * load
+    fresh = circuits._solve_reservoir((*inputs, ipk, np.float64(P.ESR_RATIO_AT_END),
+                                       np.float64(P.CAPACITANCE_LOSS_AT_END)), (n,))
+    circuits._reservoir_memo.clear()
+    first = ph.threshold_reservoir(*(a[: n // 2] for a in inputs))      # solved, remembered
+    assert len(circuits._reservoir_memo) == n // 2
+    again = ph.threshold_reservoir(*(a[::-1] for a in inputs))           # half remembered, half new
+    alone = [ph.threshold_reservoir(*(a[k] for a in inputs)) for k in range(n)]  # all remembered
+    assert np.array_equal(first, fresh[: n // 2])
+    assert np.array_equal(again, fresh[::-1])
+    assert np.array_equal(np.array(alone), fresh)
+    # A call larger than the desk's solves afresh and leaves the memory alone.
+    circuits._reservoir_memo.clear()
+    big = ph.threshold_reservoir(*(np.tile(a, 2) for a in inputs))
+    assert np.array_equal(big, np.tile(fresh, 2)) and not circuits._reservoir_memo
+    for k in np.flatnonzero(np.isfinite(fresh) & (fresh > 0))[:10]:
+        def excess(d, k=k):
+            c = ph.capacitance_at_damage(c0[k], d)
+            return ph.reservoir_ripple_vpp(load[k], hz[k], c, ph.esr_at_damage(e0[k], d)) - limit[k]
+        assert fresh[k] == pytest.approx(optimize.brentq(excess, 0.0, P.DAMAGE_MAX, xtol=1e-13), abs=1e-9)
+
+
 # --- broadcasting and return types ---------------------------------------------------
 
 def test_scalars_return_float_arrays_broadcast():

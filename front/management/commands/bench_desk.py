@@ -167,6 +167,21 @@ def _moment(when):
     return timezone.localtime(when).strftime("%Y-%m-%dT%H:%M:%S")
 
 
+def _served_ms(log_path, path):
+    """The server's own time [ms] of each POST to ``path`` in gunicorn's access
+    log (``%(D)s``, microseconds), in order; [] when the log is missing."""
+    try:
+        lines = Path(log_path).read_text(errors="replace").splitlines()
+    except OSError:
+        return []
+    served = []
+    for line in lines:
+        parts = line.split()
+        if len(parts) == 4 and parts[0] == "POST" and parts[1] == path and parts[3].isdigit():
+            served.append(int(parts[3]) / 1000.0)
+    return served
+
+
 def _p95(times):
     ordered = sorted(times)
     return ordered[min(len(ordered) - 1, int(round(0.95 * (len(ordered) - 1))))]
@@ -222,6 +237,7 @@ class Command(BaseCommand):
                 except subprocess.TimeoutExpired:
                     server.kill()
                     server.wait()
+            served = _served_ms(Path(var_dir) / "access.log", reverse("check_in"))[-len(times):]
         queries, verdict_queries = self._count_queries(user, local_units[0])
         stages = self._stages(user, local_units[1:]) if len(local_units) > 1 else None
         touched = [unit_id for unit_id, _, _ in picked]
@@ -240,6 +256,11 @@ class Command(BaseCommand):
                           f"{load[0]:.2f} {load[1]:.2f} {load[2]:.2f}")
         self.stdout.write(f"Machine yardstick (bench_record.yardstick_ms, a fixed pure-Python task; lower is faster): "
                           f"{yardstick[0]:.0f} ms before, {yardstick[1]:.0f} ms after")
+        if len(served) == len(times):
+            gap = [t - s for t, s in zip(times, served)]
+            self.stdout.write(f"The same check-ins as the server timed them (gunicorn's access log, request read to "
+                              f"response written): p50 {statistics.median(served):.1f} ms, p95 {_p95(served):.1f} ms; "
+                              f"the rest (the client, the connection) p50 {statistics.median(gap):.1f} ms")
         if stages:
             self.stdout.write(stages)
         if state:
@@ -259,7 +280,8 @@ class Command(BaseCommand):
         log = open(Path(var_dir) / "gunicorn.log", "wb")
         return subprocess.Popen(
             [sys.executable, "-m", "gunicorn", "-c", "python:config.gunicorn", "config.wsgi", "--bind", f"127.0.0.1:{port}",
-             "--workers", str(workers), "--log-level", "warning", "--timeout", "120", "--no-control-socket"],
+             "--workers", str(workers), "--log-level", "warning", "--timeout", "120", "--no-control-socket",
+             "--access-logfile", str(Path(var_dir) / "access.log"), "--access-logformat", "%(m)s %(U)s %(s)s %(D)s"],
             cwd=settings.BASE_DIR, env=env, stdout=log, stderr=subprocess.STDOUT)
 
     def _wait(self, browser, server, var_dir):
