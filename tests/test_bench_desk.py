@@ -53,6 +53,11 @@ def test_it_checks_units_out_and_in_through_the_server_and_records_the_figures(b
                      r"[\d.]+ ms: closing the hire [\d.]+, the history's sync [\d.]+, the forecast [\d.]+ "
                      r"\(load [\d.]+, compute [\d.]+, store [\d.]+\)", text), text
     assert "budget p95 50 ms: " in text
+    # The server's own time of the same three check-ins, from gunicorn's access log: no more than the client's.
+    served = re.search(r"The same check-ins as the server timed them .*: p50 ([\d.]+) ms, p95 ([\d.]+) ms; the rest "
+                       r"\(the client, the connection\) p50 (-?[\d.]+) ms", text)
+    assert served, text
+    assert 0 < float(served[1]) <= figures[f"checkin_p50_ms_{vendor}"] + 0.1
 
     # The server did the work: four hires through it (one warm-up, three timed) and three in this
     # process, each checked out and back in by the desk user, each with its refreshed forecast.
@@ -71,6 +76,14 @@ def test_it_checks_units_out_and_in_through_the_server_and_records_the_figures(b
         assert UnitForecast.objects.get(unit_id=hire.unit_id).computed_at >= hire.in_at
     # The units are left as they were found: available, none out.
     assert {u.pk: u.status for u in Unit.objects.all()} == before
+
+
+def test_the_server_times_are_read_from_the_access_log_in_order(tmp_path):
+    log = tmp_path / "access.log"
+    log.write_text("GET /desk/check-in/ 200 900\nPOST /desk/check-out/ 302 5000\nPOST /desk/check-in/ 200 41500\n"
+                   "POST /desk/check-in/ 200 38250\nnot a line of ours\n")
+    assert bench_desk._served_ms(log, "/desk/check-in/") == [41.5, 38.25]
+    assert bench_desk._served_ms(tmp_path / "missing.log", "/desk/check-in/") == []
 
 
 def test_it_refuses_an_empty_database(bench_file):

@@ -4,7 +4,8 @@ Starts gunicorn on a spare port against this command's database, signs in
 as the desk user ``bench-desk`` over HTTP (the CSRF cookie and token, the
 sign-in form), and for each of ``--units`` units checks it out and then in
 through the forms, timing the check-in from the POST to its answer, the
-verdict page (read whole).  Prints p50, p95 and max, the machine's load
+verdict page (read whole).  Prints p50, p95 and max, the same check-ins as
+the server itself timed them (gunicorn's access log), the machine's load
 and speed (``bench_record.yardstick_ms``), and the queries of one more
 check-in counted in this process through Django's test client; records ``checkin_p50_ms_<vendor>``,
 ``checkin_p95_ms_<vendor>``, ``checkin_queries_<vendor>`` and
