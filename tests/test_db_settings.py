@@ -12,7 +12,7 @@ PG = "postgres://someone@db.invalid:5432/recap"
 
 @pytest.fixture
 def env(monkeypatch):
-    for name in ("DATABASE_URL", "DB_CONN_MAX_AGE", "DB_CONN_HEALTH_CHECKS"):
+    for name in ("DATABASE_URL", "DB_CONN_MAX_AGE", "DB_CONN_HEALTH_CHECKS", "DB_PREPARED"):
         monkeypatch.delenv(name, raising=False)
     return monkeypatch
 
@@ -24,6 +24,21 @@ def test_connections_are_kept_ten_minutes_and_checked_by_default(env):
     assert db["NAME"] == "recap" and db["HOST"] == "db.invalid"
     assert db["CONN_MAX_AGE"] == 600
     assert db["CONN_HEALTH_CHECKS"] is True
+
+
+def test_postgresql_statements_are_prepared_unless_turned_off(env):
+    env.setenv("DATABASE_URL", PG)
+    db = database_from_env("sqlite:///unused.sqlite3")
+    assert db["OPTIONS"]["server_side_binding"] is True
+    assert db["OPTIONS"]["prepare_threshold"] == 2
+    env.setenv("DB_PREPARED", "false")  # behind a pooler without prepared-statement support
+    db = database_from_env("sqlite:///unused.sqlite3")
+    assert "server_side_binding" not in db.get("OPTIONS", {}) and "prepare_threshold" not in db.get("OPTIONS", {})
+
+
+def test_sqlite_takes_no_postgresql_options(env, tmp_path):
+    db = database_from_env(f"sqlite:///{tmp_path / 'x.sqlite3'}")
+    assert "server_side_binding" not in db.get("OPTIONS", {})
 
 
 def test_the_default_address_is_used_without_database_url(env, tmp_path):
