@@ -145,6 +145,10 @@ WSGI_APPLICATION = "config.wsgi.application"
 _default_db = f"sqlite:///{VAR_DIR / 'recap.sqlite3'}"
 
 
+#: psycopg prepares a statement once it has run more than this many times on a connection.
+PREPARE_AFTER_RUNS = 2
+
+
 def database_from_env(default_url):
     """The default database from ``DATABASE_URL``, its connections kept.
 
@@ -177,10 +181,6 @@ def database_from_env(default_url):
         options.setdefault("server_side_binding", True)
         options.setdefault("prepare_threshold", PREPARE_AFTER_RUNS)
     return db
-
-
-#: psycopg prepares a statement once it has run more than this many times on a connection.
-PREPARE_AFTER_RUNS = 2
 
 
 DATABASES = {"default": database_from_env(_default_db)}

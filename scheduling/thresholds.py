@@ -122,7 +122,6 @@ def _pump_thresholds(fa, damage, rate, threshold, role, today_day):
     # do); the search's many steps below use their unchecked kernels on them.
     c_fly, c_res, e_fly, e_res = fa.capacitance_f[fly], fa.capacitance_f[res], fa.esr0_ohm[fly], fa.esr0_ohm[res]
     physics.inverter_output_v(vin, load, f, c_fly, c_res, e_fly, e_res, rsw)
-    physics.esr_at_damage(e_fly, 0.0), physics.esr_at_damage(e_res, 0.0)
     loss, ratio, k_fly = (np.float64(x) for x in (P.CAPACITANCE_LOSS_AT_END, P.ESR_RATIO_AT_END, P.FLYING_ESR_FACTOR))
 
     def margin_of(units, t):

@@ -516,13 +516,12 @@ def _reservoir_remembered(inputs, shape):
     units of one gear model share their reservoirs' design figures and, while
     original, their parts' ratings, and the desk's next check-in of such a unit
     skips the search.  A test holds the remembered answers equal to fresh ones."""
-    columns = [np.broadcast_to(a, shape).reshape(-1).tolist() for a in inputs]
-    keys = list(zip(*columns))
+    columns = [np.broadcast_to(a, shape).reshape(-1) for a in inputs]
+    keys = list(zip(*(c.tolist() for c in columns)))
     found = [_reservoir_memo.get(key) for key in keys]
     missing = [k for k, value in enumerate(found) if value is None]
     if missing:
-        sub = tuple(np.array([columns[j][k] for k in missing]) for j in range(len(inputs)))
-        solved = _solve_reservoir(sub, (len(missing),)).tolist()
+        solved = _solve_reservoir(tuple(c[missing] for c in columns), (len(missing),)).tolist()
         if len(_reservoir_memo) + len(missing) > RESERVOIR_MEMO_SIZE:
             _reservoir_memo.clear()
         for k, value in zip(missing, solved):
